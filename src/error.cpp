@@ -1,0 +1,65 @@
+#include "statewise/error.h"
+
+#include <algorithm>
+#include <numeric>
+
+namespace statewise {
+
+std::string format_location(const SourceLocation& location) {
+  std::string prefix = location.file.empty() ? std::string("<input>") : location.file;
+  if (location.line > 0) {
+    prefix += ":" + std::to_string(location.line);
+    if (location.column > 0) prefix += ":" + std::to_string(location.column);
+  } else if (!location.key.empty()) {
+    prefix += ": " + location.key;
+  }
+  return prefix;
+}
+
+InputError::InputError(SourceLocation location, const std::string& message)
+    : std::runtime_error(format_location(location) + ": " + message),
+      location_(std::move(location)),
+      detail_(message) {}
+
+void raise_input_error(const SourceLocation& location, std::string_view message) {
+  throw InputError(location, std::string(message));
+}
+
+namespace {
+// Levenshtein distance with one rolling row.
+std::size_t edit_distance(std::string_view a, std::string_view b) {
+  std::vector<std::size_t> row(b.size() + 1);
+  std::iota(row.begin(), row.end(), std::size_t{0});
+  for (std::size_t i = 1; i <= a.size(); ++i) {
+    std::size_t diagonal = row[0];
+    row[0] = i;
+    for (std::size_t j = 1; j <= b.size(); ++j) {
+      const std::size_t above = row[j];
+      const std::size_t substitution = diagonal + (a[i - 1] == b[j - 1] ? 0 : 1);
+      row[j] = std::min({above + 1, row[j - 1] + 1, substitution});
+      diagonal = above;
+    }
+  }
+  return row[b.size()];
+}
+}  // namespace
+
+std::string closest_match(std::string_view word, const std::vector<std::string>& candidates) {
+  std::string best;
+  std::size_t best_distance = word.size() / 3 + 1;  // more changes than this is not a near miss
+  for (const auto& candidate : candidates) {
+    const std::size_t distance = edit_distance(word, candidate);
+    if (distance < best_distance) {
+      best_distance = distance;
+      best = candidate;
+    }
+  }
+  return best;
+}
+
+std::string did_you_mean(std::string_view word, const std::vector<std::string>& candidates) {
+  const std::string match = closest_match(word, candidates);
+  return match.empty() ? std::string() : "; did you mean \"" + match + "\"?";
+}
+
+}  // namespace statewise
