@@ -1,0 +1,104 @@
+#pragma once
+/// \file filter.h
+/// The Kalman filter (R. E. Kalman, A new approach to linear filtering and prediction problems,
+/// J. Basic Engineering 82, 1960) as an online engine: one predict and one update per log row, with
+/// any subset of channels missing, the Joseph-form covariance update and the exact Gaussian
+/// log-likelihood of the observed values. No heap allocation happens per row.
+
+#include <limits>
+
+#include <Eigen/Cholesky>
+#include <Eigen/Core>
+
+#include "statewise/model.h"
+
+namespace statewise {
+
+/// One step's state transition: x_t = A x_{t-1} + B u_{t-1} + w_t with w_t ~ N(0, Q).
+struct Transition {
+  Eigen::MatrixXd A;  ///< n×n
+  Eigen::MatrixXd B;  ///< n×p
+  Eigen::MatrixXd Q;  ///< n×n, symmetric PSD
+};
+
+/// The transition of a model whose rows are one model step apart.
+Transition model_transition(const StateSpaceModel& model);
+
+/// How a filter step ended. Numerical trouble is reported here, never thrown.
+enum class StepStatus {
+  ok,                              ///< the step succeeded
+  singular_innovation_covariance,  ///< S = C P C' + R of the observed channels is not positive definite
+  not_finite,                      ///< a mean or covariance became NaN or infinite
+};
+
+/// A plain-words description of a status, for messages.
+const char* describe(StepStatus status);
+
+/// What one row's update produced, for output and diagnostics. Vectors have one entry per channel.
+struct InnovationRecord {
+  Eigen::VectorXd innovation;     ///< v = y - C x_{t|t-1}; NaN where the channel is missing
+  Eigen::VectorXd innovation_sd;  ///< sqrt of the diagonal of S = C P_{t|t-1} C' + R; NaN where missing
+  int observed = 0;               ///< number of channels observed on this row
+  /// Normalized innovation squared v' S^-1 v over the observed channels; NaN when none is observed.
+  double nis = std::numeric_limits<double>::quiet_NaN();
+  /// log N(v; 0, S) of the observed values; 0 when none is observed.
+  double log_likelihood = 0.0;
+};
+
+/// Predicted moments: x_pred = A x + B u, P_pred = A P A' + Q, symmetrized. `inputs` points at p
+/// values (may be null when p = 0). Shared by the filter and the smoother so both compute the very
+/// same numbers.
+void predict_moments(const Transition& transition, const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance,
+                     const double* inputs, Eigen::VectorXd& predicted_mean, Eigen::MatrixXd& predicted_covariance,
+                     Eigen::MatrixXd& workspace);
+
+/// The online Kalman filter for one model. Typical use per row t:
+/// `if (t > 0) filter.predict(transition, inputs_of_row_t_minus_1); filter.update(values_of_row_t, record);`
+class KalmanFilter {
+ public:
+  /// Prepares a filter at the model's initial prior (the prior for the state at the first row).
+  explicit KalmanFilter(const StateSpaceModel& model);
+
+  /// Returns to the initial prior.
+  void reset();
+  /// Replaces the current mean and covariance (to resume from saved state).
+  void set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance);
+
+  /// Moves the state one transition ahead: x = A x + B u, P = A P A' + Q.
+  void predict(const Transition& transition, const double* previous_inputs);
+
+  /// Updates with one row of m values (NaN = missing). Channels present are used jointly; a row with
+  /// none is a pure prediction. Uses the Joseph form
+  /// P = (I - K C) P (I - K C)' + K R K' (Bucy and Joseph, Filtering for Stochastic Processes, 1968;
+  /// see also Simon, Optimal State Estimation, 2006, section 5.1), kept symmetric.
+  /// On a non-ok status the state is left as it was before the call.
+  StepStatus update(const double* values, InnovationRecord& record);
+
+  /// Current mean (filtered after update, predicted after predict).
+  const Eigen::VectorXd& mean() const { return mean_; }
+  /// Current covariance.
+  const Eigen::MatrixXd& covariance() const { return covariance_; }
+  /// The model the filter runs.
+  const StateSpaceModel& model() const { return model_; }
+
+ private:
+  // Work matrices for k observed channels, allocated once per k so that no row allocates.
+  struct Workspace {
+    Eigen::MatrixXd C, R, PCt, S, K, KR, gain_transposed;
+    Eigen::VectorXd v, whitened;
+    Eigen::LLT<Eigen::MatrixXd> cholesky;
+  };
+  StateSpaceModel model_;
+  Eigen::VectorXd mean_;
+  Eigen::MatrixXd covariance_;
+  Eigen::MatrixXd identity_minus_gain_, product_, predicted_workspace_;
+  Eigen::VectorXd predicted_mean_;
+  Eigen::MatrixXd predicted_covariance_;
+  std::vector<Workspace> workspaces_;  // index k = number of observed channels
+  std::vector<int> observed_index_;
+};
+
+/// Creates an InnovationRecord sized for m channels.
+InnovationRecord make_innovation_record(int channels);
+
+}  // namespace statewise

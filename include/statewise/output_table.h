@@ -1,0 +1,58 @@
+#pragma once
+/// \file output_table.h
+/// Formats estimates as rows of delimited text, the columns documented in docs/outputs.md:
+/// the time column if declared; per state s: `s`, `s_sd`; per channel c: `c_est`, `c_sd`,
+/// `c_filled`, `c_imputed`; for the filter also `c_innov` and `c_z`. Missing numbers are empty cells;
+/// numbers are written in shortest round-trip form (std::to_chars) or with a chosen number of
+/// significant digits.
+
+#include <string>
+#include <string_view>
+
+#include <Eigen/Core>
+
+#include "statewise/filter.h"
+#include "statewise/model.h"
+
+namespace statewise {
+
+/// Which command's columns to write.
+enum class EstimateKind {
+  filtered,  ///< filter: adds c_innov and c_z
+  smoothed,  ///< smooth
+};
+
+/// How numbers and fields are written.
+struct TableFormat {
+  char delimiter = ',';  ///< field separator
+  int digits = 0;        ///< significant digits; 0 = shortest text that reads back to the same double
+};
+
+/// Appends `value` to `out`: empty for NaN, otherwise shortest round-trip or `digits` significant digits.
+void append_number(std::string& out, double value, int digits);
+
+/// Appends a text field, quoted by RFC 4180 rules when it holds the delimiter, a quote or a line break.
+void append_text_field(std::string& out, std::string_view text, char delimiter);
+
+/// Writes the header and rows of an estimates table into a caller-owned string buffer.
+class EstimateTableWriter {
+ public:
+  /// Prepares columns for `model`.
+  EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format);
+  /// Appends the header line.
+  void append_header(std::string& out) const;
+  /// Appends one row. `values` are the row's m measured values (NaN = missing); `innovations` is
+  /// required for EstimateKind::filtered and ignored otherwise.
+  void append_row(std::string& out, std::string_view time_text, const double* values,
+                  const Eigen::Ref<const Eigen::VectorXd>& mean, const Eigen::Ref<const Eigen::MatrixXd>& covariance,
+                  const InnovationRecord* innovations) const;
+
+ private:
+  const StateSpaceModel& model_;
+  EstimateKind kind_;
+  TableFormat format_;
+  mutable Eigen::VectorXd channel_mean_;
+  mutable Eigen::MatrixXd covariance_times_ct_;
+};
+
+}  // namespace statewise

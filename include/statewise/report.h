@@ -1,0 +1,29 @@
+#pragma once
+/// \file report.h
+/// The JSON report of a filter or smooth run (keys documented in docs/outputs.md).
+
+#include <cstddef>
+#include <string>
+#include <vector>
+
+#include "statewise/diagnostics.h"
+
+namespace statewise {
+
+/// Everything a run reports besides its rows.
+struct RunReport {
+  std::string command;                             ///< "filter" or "smooth"
+  std::string model_path;                          ///< the model file as given
+  std::string input_path;                          ///< the log as given ("-" for standard input)
+  std::size_t rows = 0;                            ///< rows read and estimated
+  int states = 0;                                  ///< n
+  double log_likelihood = 0.0;                     ///< sum over rows of log N(v_t; 0, S_t) of the observed values
+  std::vector<ChannelInnovationSummary> channels;  ///< one per measured channel
+  NisSummary nis;                                  ///< time-averaged normalized innovation squared
+  std::vector<std::string> warnings;               ///< plain sentences
+};
+
+/// The report as pretty JSON text (NaN becomes null), ending with a newline.
+std::string write_report_json(const RunReport& report);
+
+}  // namespace statewise

@@ -1,0 +1,132 @@
+#include "cli/output_file.h"
+
+#include <cerrno>
+#include <cstring>
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+namespace statewise::cli {
+
+namespace {
+constexpr std::size_t kFlushThreshold = 1 << 20;
+
+std::string system_reason() { return std::strerror(errno); }
+
+std::string folder_of(const std::string& path) {
+  const std::size_t slash = path.rfind('/');
+  if (slash == std::string::npos) return ".";
+  if (slash == 0) return "/";
+  return path.substr(0, slash);
+}
+
+std::string base_name_of(const std::string& path) {
+  const std::size_t slash = path.rfind('/');
+  return slash == std::string::npos ? path : path.substr(slash + 1);
+}
+}  // namespace
+
+OutputFile::OutputFile(std::string path, const std::string& input_path) : path_(std::move(path)) {
+  if (path_ == "-" || path_.empty()) {
+    descriptor_ = STDOUT_FILENO;
+    struct stat info {};
+    interactive_ = fstat(descriptor_, &info) == 0 && (S_ISFIFO(info.st_mode) || S_ISCHR(info.st_mode) || S_ISSOCK(info.st_mode));
+    return;
+  }
+  struct stat target {};
+  const bool exists = stat(path_.c_str(), &target) == 0;
+  if (exists && !input_path.empty() && input_path != "-") {
+    struct stat input {};
+    if (stat(input_path.c_str(), &input) == 0 && input.st_dev == target.st_dev && input.st_ino == target.st_ino)
+      throw OutputError{path_ + ": is the input file; refusing to overwrite the log with its own estimates"};
+  }
+  if (exists && !S_ISREG(target.st_mode)) {
+    // A device or a pipe: write to it directly, never replace it.
+    descriptor_ = open(path_.c_str(), O_WRONLY | O_CLOEXEC);
+    if (descriptor_ < 0) throw OutputError{path_ + ": cannot open for writing: " + system_reason()};
+    owns_descriptor_ = true;
+    interactive_ = S_ISFIFO(target.st_mode) || S_ISCHR(target.st_mode);
+    return;
+  }
+  std::string pattern = folder_of(path_) + "/." + base_name_of(path_) + ".tmp-XXXXXX";
+  descriptor_ = mkostemp(pattern.data(), O_CLOEXEC);
+  if (descriptor_ < 0) throw OutputError{path_ + ": cannot create a temporary file beside it: " + system_reason()};
+  owns_descriptor_ = true;
+  temporary_path_ = pattern;
+  // Give the new file the permissions an ordinary new file would get, or keep the old file's.
+  mode_t mode = 0666;
+  if (exists) {
+    mode = target.st_mode & 07777;
+  } else {
+    const mode_t mask = umask(0);
+    umask(mask);
+    mode &= ~mask;
+  }
+  fchmod(descriptor_, mode);
+}
+
+OutputFile::~OutputFile() {
+  if (owns_descriptor_ && descriptor_ >= 0) close(descriptor_);
+  if (!committed_ && !temporary_path_.empty()) unlink(temporary_path_.c_str());
+}
+
+void OutputFile::write_all(const char* data, std::size_t size) {
+  while (size > 0) {
+    const ssize_t written = ::write(descriptor_, data, size);
+    if (written < 0) {
+      if (errno == EINTR) continue;
+      throw OutputError{(path_ == "-" ? std::string("standard output") : path_) + ": cannot write: " + system_reason()};
+    }
+    data += written;
+    size -= static_cast<std::size_t>(written);
+  }
+}
+
+void OutputFile::write(std::string_view text) {
+  buffer_.append(text);
+  if (buffer_.size() >= kFlushThreshold) flush();
+}
+
+void OutputFile::write_buffer(std::string& buffer) {
+  if (buffer_.empty() && buffer.size() >= kFlushThreshold) {
+    write_all(buffer.data(), buffer.size());
+  } else {
+    buffer_ += buffer;
+    if (buffer_.size() >= kFlushThreshold) flush();
+  }
+  buffer.clear();
+}
+
+void OutputFile::flush() {
+  if (buffer_.empty()) return;
+  write_all(buffer_.data(), buffer_.size());
+  buffer_.clear();
+}
+
+void OutputFile::commit() {
+  flush();
+  if (temporary_path_.empty()) return;
+  if (fsync(descriptor_) != 0) throw OutputError{path_ + ": cannot write: " + system_reason()};
+  if (close(descriptor_) != 0) {
+    descriptor_ = -1;
+    throw OutputError{path_ + ": cannot write: " + system_reason()};
+  }
+  descriptor_ = -1;
+  if (rename(temporary_path_.c_str(), path_.c_str()) != 0)
+    throw OutputError{path_ + ": cannot put the output in place: " + system_reason()};
+  committed_ = true;
+  // Make the rename durable too.
+  const int folder = open(folder_of(path_).c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
+  if (folder >= 0) {
+    fsync(folder);
+    close(folder);
+  }
+}
+
+void write_whole_file(const std::string& path, std::string_view text, const std::string& input_path) {
+  OutputFile file(path, input_path);
+  file.write(text);
+  file.commit();
+}
+
+}  // namespace statewise::cli

@@ -1,0 +1,239 @@
+#include "detail/json_util.h"
+
+#include <cmath>
+#include <set>
+
+#include "statewise/error.h"
+
+namespace statewise::detail {
+
+using nlohmann::json;
+
+namespace {
+constexpr int kMaximumNesting = 64;
+
+// 1-based line and column of a byte offset in the text.
+SourceLocation location_of_byte(std::string_view text, std::size_t byte, const std::string& file_name) {
+  SourceLocation location{file_name, 1, 1, ""};
+  const std::size_t end = std::min(byte, text.size());
+  for (std::size_t i = 0; i < end; ++i) {
+    if (text[i] == '\n') {
+      ++location.line;
+      location.column = 1;
+    } else {
+      ++location.column;
+    }
+  }
+  return location;
+}
+
+bool is_scalar_list(const OrderedJson& value) {
+  if (!value.is_array()) return false;
+  for (const auto& item : value)
+    if (item.is_structured()) return false;
+  return true;
+}
+
+void dump_into(const OrderedJson& value, int indent, std::string& out) {
+  const std::string pad(static_cast<std::size_t>(indent), ' ');
+  const std::string inner(static_cast<std::size_t>(indent + 2), ' ');
+  if (value.is_object()) {
+    if (value.empty()) {
+      out += "{}";
+      return;
+    }
+    out += "{\n";
+    bool first = true;
+    for (auto it = value.begin(); it != value.end(); ++it) {
+      if (!first) out += ",\n";
+      first = false;
+      out += inner + OrderedJson(it.key()).dump() + ": ";
+      dump_into(it.value(), indent + 2, out);
+    }
+    out += "\n" + pad + "}";
+  } else if (is_scalar_list(value)) {
+    out += value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
+    // nlohmann writes "[1,2]"; add a space after each comma for readability.
+    std::string spaced;
+    const std::size_t start = out.rfind('[');
+    for (std::size_t i = start; i < out.size(); ++i) {
+      spaced += out[i];
+      if (out[i] == ',') spaced += ' ';
+    }
+    out.resize(start);
+    out += spaced;
+  } else if (value.is_array()) {
+    if (value.empty()) {
+      out += "[]";
+      return;
+    }
+    out += "[\n";
+    bool first = true;
+    for (const auto& item : value) {
+      if (!first) out += ",\n";
+      first = false;
+      out += inner;
+      dump_into(item, indent + 2, out);
+    }
+    out += "\n" + pad + "]";
+  } else {
+    out += value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
+  }
+}
+}  // namespace
+
+void JsonContext::fail(const std::string& key, const std::string& message) const {
+  raise_input_error({file_name, 0, 0, key.empty() ? std::string("top level") : key}, message);
+}
+
+json parse_json_document(std::string_view text, const std::string& file_name) {
+  if (text.find_first_not_of(" \t\r\n") == std::string_view::npos)
+    raise_input_error({file_name, 0, 0, ""}, "the file is empty; expected a JSON object");
+  std::vector<std::set<std::string>> keys_per_level;
+  std::vector<std::string> path;
+  auto callback = [&](int depth, json::parse_event_t event, json& parsed) {
+    if (depth > kMaximumNesting)
+      raise_input_error({file_name, 0, 0, ""},
+                        "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+    switch (event) {
+      case json::parse_event_t::object_start:
+        keys_per_level.emplace_back();
+        break;
+      case json::parse_event_t::object_end:
+        if (!keys_per_level.empty()) keys_per_level.pop_back();
+        break;
+      case json::parse_event_t::key: {
+        const std::string key = parsed.get<std::string>();
+        if (!keys_per_level.empty() && !keys_per_level.back().insert(key).second)
+          raise_input_error({file_name, 0, 0, key}, "the key appears twice in the same object; keep one");
+        break;
+      }
+      default:
+        break;
+    }
+    return true;
+  };
+  try {
+    return json::parse(text.begin(), text.end(), callback);
+  } catch (const json::parse_error& error) {
+    std::string what = error.what();
+    // nlohmann's text reads "[json.exception.parse_error.101] parse error at line 1, column 2: <detail>".
+    const std::size_t colon = what.find(": ");
+    std::string detail_text = colon == std::string::npos ? what : what.substr(colon + 2);
+    const SourceLocation location =
+        location_of_byte(text, error.byte > 0 ? error.byte - 1 : 0, file_name);
+    raise_input_error(location, "invalid JSON: " + detail_text);
+  } catch (const json::exception& error) {
+    std::string what = error.what();
+    const std::size_t bracket = what.find("] ");
+    raise_input_error({file_name, 0, 0, ""},
+                      "invalid JSON: " + (bracket == std::string::npos ? what : what.substr(bracket + 2)));
+  }
+}
+
+std::string describe(const json& value) {
+  switch (value.type()) {
+    case json::value_t::null:
+      return "null";
+    case json::value_t::boolean:
+      return std::string("the value ") + (value.get<bool>() ? "true" : "false");
+    case json::value_t::string:
+      return "the text " + value.dump();
+    case json::value_t::number_integer:
+    case json::value_t::number_unsigned:
+    case json::value_t::number_float:
+      return "the number " + value.dump();
+    case json::value_t::array:
+      return "a list of " + std::to_string(value.size()) + (value.size() == 1 ? " item" : " items");
+    case json::value_t::object:
+      return "an object";
+    default:
+      return "an unexpected value";
+  }
+}
+
+void reject_unknown_keys(const JsonContext& context, const json& object, const std::string& path,
+                         const std::vector<std::string>& allowed) {
+  for (auto it = object.begin(); it != object.end(); ++it) {
+    bool known = false;
+    for (const auto& name : allowed) known = known || name == it.key();
+    if (!known) {
+      const std::string key = path.empty() ? it.key() : path + "." + it.key();
+      context.fail(key, "unknown key" + did_you_mean(it.key(), allowed));
+    }
+  }
+}
+
+Eigen::Index matrix_rows(const JsonContext& context, const json& value, const std::string& key) {
+  if (value.is_number()) return 1;
+  if (value.is_array()) return static_cast<Eigen::Index>(value.size());
+  context.fail(key, "expected a matrix (a list of rows), got " + describe(value));
+}
+
+double parse_number(const JsonContext& context, const json& value, const std::string& key) {
+  if (!value.is_number()) context.fail(key, "expected a number, got " + describe(value));
+  const double number = value.get<double>();
+  if (!std::isfinite(number)) context.fail(key, "expected a finite number, got " + value.dump());
+  return number;
+}
+
+Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, const std::string& key,
+                             Eigen::Index rows, Eigen::Index cols, const std::string& what) {
+  const std::string expected = std::to_string(rows) + "×" + std::to_string(cols) + " matrix (" + what + ")";
+  if (value.is_number()) {
+    if (rows != 1 || cols != 1) context.fail(key, "expected a " + expected + ", got a single number");
+    return Eigen::MatrixXd::Constant(1, 1, parse_number(context, value, key));
+  }
+  if (!value.is_array())
+    context.fail(key, "expected a " + expected + " as a list of rows, got " + describe(value));
+  if (static_cast<Eigen::Index>(value.size()) != rows)
+    context.fail(key, "expected a " + expected + ", got " + std::to_string(value.size()) + " rows");
+  Eigen::MatrixXd matrix(rows, cols);
+  for (Eigen::Index i = 0; i < rows; ++i) {
+    const json& row = value[static_cast<std::size_t>(i)];
+    const std::string row_key = key + "[" + std::to_string(i) + "]";
+    if (!row.is_array())
+      context.fail(row_key, "expected a row of " + std::to_string(cols) + " numbers, got " + describe(row));
+    if (static_cast<Eigen::Index>(row.size()) != cols)
+      context.fail(row_key, "expected a " + expected + ", got a row of " + std::to_string(row.size()) + " numbers");
+    for (Eigen::Index j = 0; j < cols; ++j)
+      matrix(i, j) = parse_number(context, row[static_cast<std::size_t>(j)], row_key + "[" + std::to_string(j) + "]");
+  }
+  return matrix;
+}
+
+Eigen::VectorXd parse_vector(const JsonContext& context, const json& value, const std::string& key,
+                             Eigen::Index size, const std::string& what) {
+  if (value.is_number() && size == 1) return Eigen::VectorXd::Constant(1, parse_number(context, value, key));
+  if (!value.is_array() || static_cast<Eigen::Index>(value.size()) != size)
+    context.fail(key, "expected a list of " + std::to_string(size) + " numbers (" + what + "), got " + describe(value));
+  Eigen::VectorXd vector(size);
+  for (Eigen::Index i = 0; i < size; ++i)
+    vector(i) = parse_number(context, value[static_cast<std::size_t>(i)], key + "[" + std::to_string(i) + "]");
+  return vector;
+}
+
+OrderedJson matrix_to_json(const Eigen::MatrixXd& matrix) {
+  OrderedJson rows = OrderedJson::array();
+  for (Eigen::Index i = 0; i < matrix.rows(); ++i) {
+    OrderedJson row = OrderedJson::array();
+    for (Eigen::Index j = 0; j < matrix.cols(); ++j) row.push_back(matrix(i, j));
+    rows.push_back(std::move(row));
+  }
+  return rows;
+}
+
+OrderedJson vector_to_json(const Eigen::VectorXd& vector) {
+  OrderedJson items = OrderedJson::array();
+  for (Eigen::Index i = 0; i < vector.size(); ++i) items.push_back(vector(i));
+  return items;
+}
+
+std::string dump_json_pretty(const OrderedJson& value) {
+  std::string out;
+  dump_into(value, 0, out);
+  out += "\n";
+  return out;
+}
+
+}  // namespace statewise::detail

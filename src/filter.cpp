@@ -1,0 +1,173 @@
+#include "statewise/filter.h"
+
+#include <cmath>
+#include <numbers>
+
+namespace statewise {
+
+namespace {
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+void symmetrize(Eigen::MatrixXd& matrix) {
+  for (Eigen::Index i = 0; i < matrix.rows(); ++i)
+    for (Eigen::Index j = i + 1; j < matrix.cols(); ++j) {
+      const double average = 0.5 * (matrix(i, j) + matrix(j, i));
+      matrix(i, j) = average;
+      matrix(j, i) = average;
+    }
+}
+
+bool all_finite(const Eigen::MatrixXd& matrix) { return matrix.allFinite(); }
+}  // namespace
+
+Transition model_transition(const StateSpaceModel& model) { return Transition{model.A, model.B, model.Q}; }
+
+const char* describe(StepStatus status) {
+  switch (status) {
+    case StepStatus::ok:
+      return "ok";
+    case StepStatus::singular_innovation_covariance:
+      return "the innovation covariance C P C' + R of the observed channels is singular (not positive definite)";
+    case StepStatus::not_finite:
+      return "the state mean or covariance became NaN or infinite";
+  }
+  return "unknown status";
+}
+
+InnovationRecord make_innovation_record(int channels) {
+  InnovationRecord record;
+  record.innovation = Eigen::VectorXd::Constant(channels, kNaN);
+  record.innovation_sd = Eigen::VectorXd::Constant(channels, kNaN);
+  return record;
+}
+
+void predict_moments(const Transition& transition, const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance,
+                     const double* inputs, Eigen::VectorXd& predicted_mean, Eigen::MatrixXd& predicted_covariance,
+                     Eigen::MatrixXd& workspace) {
+  // x_pred = A x + B u
+  predicted_mean.noalias() = transition.A * mean;
+  if (transition.B.cols() > 0 && inputs != nullptr)
+    predicted_mean.noalias() += transition.B * Eigen::Map<const Eigen::VectorXd>(inputs, transition.B.cols());
+  // P_pred = A P A' + Q
+  workspace.noalias() = transition.A * covariance;
+  predicted_covariance.noalias() = workspace * transition.A.transpose();
+  predicted_covariance += transition.Q;
+  symmetrize(predicted_covariance);
+}
+
+KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model) {
+  const Eigen::Index n = model.A.rows();
+  const Eigen::Index m = model.C.rows();
+  identity_minus_gain_.resize(n, n);
+  product_.resize(n, n);
+  predicted_workspace_.resize(n, n);
+  predicted_mean_.resize(n);
+  predicted_covariance_.resize(n, n);
+  workspaces_.resize(static_cast<std::size_t>(m) + 1);
+  for (Eigen::Index k = 1; k <= m; ++k) {
+    Workspace& w = workspaces_[static_cast<std::size_t>(k)];
+    w.C.resize(k, n);
+    w.R.resize(k, k);
+    w.PCt.resize(n, k);
+    w.S.resize(k, k);
+    w.K.resize(n, k);
+    w.KR.resize(n, k);
+    w.gain_transposed.resize(k, n);
+    w.v.resize(k);
+    w.whitened.resize(k);
+    w.cholesky = Eigen::LLT<Eigen::MatrixXd>(k);
+  }
+  observed_index_.resize(static_cast<std::size_t>(m));
+  reset();
+}
+
+void KalmanFilter::reset() {
+  mean_ = model_.initial_mean;
+  covariance_ = model_.initial_covariance;
+}
+
+void KalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance) {
+  mean_ = mean;
+  covariance_ = covariance;
+}
+
+void KalmanFilter::predict(const Transition& transition, const double* previous_inputs) {
+  predict_moments(transition, mean_, covariance_, previous_inputs, predicted_mean_, predicted_covariance_,
+                  predicted_workspace_);
+  mean_.swap(predicted_mean_);
+  covariance_.swap(predicted_covariance_);
+}
+
+StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) {
+  const Eigen::Index n = mean_.size();
+  const int m = static_cast<int>(model_.C.rows());
+  int k = 0;
+  for (int c = 0; c < m; ++c) {
+    record.innovation(c) = kNaN;
+    record.innovation_sd(c) = kNaN;
+    if (!std::isnan(values[c])) observed_index_[static_cast<std::size_t>(k++)] = c;
+  }
+  record.observed = k;
+  record.nis = kNaN;
+  record.log_likelihood = 0.0;
+  if (k == 0) return all_finite(covariance_) && mean_.allFinite() ? StepStatus::ok : StepStatus::not_finite;
+
+  Workspace& w = workspaces_[static_cast<std::size_t>(k)];
+  // Rows of C and the block of R for the observed channels; v = y_o - C_o x.
+  for (int a = 0; a < k; ++a) {
+    const int ca = observed_index_[static_cast<std::size_t>(a)];
+    w.C.row(a) = model_.C.row(ca);
+    for (int b = 0; b < k; ++b) w.R(a, b) = model_.R(ca, observed_index_[static_cast<std::size_t>(b)]);
+    w.v(a) = values[ca] - model_.C.row(ca).dot(mean_);
+  }
+  // S = C P C' + R
+  w.PCt.noalias() = covariance_ * w.C.transpose();
+  w.S.noalias() = w.C * w.PCt;
+  w.S += w.R;
+  symmetrize(w.S);
+  w.cholesky.compute(w.S);
+  if (w.cholesky.info() != Eigen::Success) return StepStatus::singular_innovation_covariance;
+  const auto& L = w.cholesky.matrixL();
+  double log_determinant = 0.0;
+  for (int a = 0; a < k; ++a) {
+    const double diagonal = w.cholesky.matrixLLT()(a, a);
+    if (!(diagonal > 0.0)) return StepStatus::singular_innovation_covariance;
+    log_determinant += 2.0 * std::log(diagonal);
+  }
+  // K' = S^-1 (P C')'
+  w.gain_transposed = w.PCt.transpose();
+  w.cholesky.solveInPlace(w.gain_transposed);
+  w.K = w.gain_transposed.transpose();
+  // NIS = v' S^-1 v = |L^-1 v|^2
+  w.whitened = w.v;
+  L.solveInPlace(w.whitened);
+  const double nis = w.whitened.squaredNorm();
+
+  // Joseph form: P = (I - K C) P (I - K C)' + K R K'
+  identity_minus_gain_.setIdentity();
+  identity_minus_gain_.noalias() -= w.K * w.C;
+  product_.noalias() = identity_minus_gain_ * covariance_;
+  Eigen::MatrixXd& updated = predicted_covariance_;  // reused as scratch, sized n×n
+  updated.noalias() = product_ * identity_minus_gain_.transpose();
+  w.KR.noalias() = w.K * w.R;
+  updated.noalias() += w.KR * w.K.transpose();
+  symmetrize(updated);
+  predicted_mean_ = mean_;
+  predicted_mean_.noalias() += w.K * w.v;
+  if (!updated.allFinite() || !predicted_mean_.allFinite()) return StepStatus::not_finite;
+  covariance_.swap(updated);
+  mean_.swap(predicted_mean_);
+
+  for (int a = 0; a < k; ++a) {
+    const int ca = observed_index_[static_cast<std::size_t>(a)];
+    record.innovation(ca) = w.v(a);
+    record.innovation_sd(ca) = std::sqrt(w.S(a, a));
+  }
+  record.nis = nis;
+  // log N(v; 0, S) = -(k log 2π + log det S + v' S^-1 v) / 2
+  record.log_likelihood = -0.5 * (k * std::log(2.0 * std::numbers::pi) + log_determinant + nis);
+  (void)n;
+  return StepStatus::ok;
+}
+
+}  // namespace statewise

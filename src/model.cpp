@@ -1,0 +1,230 @@
+#include "statewise/model.h"
+
+#include <cmath>
+#include <fstream>
+#include <set>
+#include <sstream>
+
+#include <Eigen/Eigenvalues>
+#include <nlohmann/json.hpp>
+
+#include "statewise/error.h"
+#include "detail/json_util.h"
+
+namespace statewise {
+
+namespace {
+
+using nlohmann::json;
+using detail::JsonContext;
+
+const std::vector<std::string> kTopLevelKeys = {"version", "description", "states", "observations", "inputs",
+                                                "A",       "B",           "C",      "Q",            "R",
+                                                "initial", "time"};
+
+std::vector<std::string> parse_name_list(const JsonContext& context, const json& value, const std::string& key) {
+  if (!value.is_array()) context.fail(key, "expected a list of names, got " + detail::describe(value));
+  std::vector<std::string> names;
+  std::set<std::string> seen;
+  for (std::size_t i = 0; i < value.size(); ++i) {
+    const std::string item_key = key + "[" + std::to_string(i) + "]";
+    if (!value[i].is_string()) context.fail(item_key, "expected a name (text), got " + detail::describe(value[i]));
+    std::string name = value[i].get<std::string>();
+    if (name.empty()) context.fail(item_key, "expected a non-empty name");
+    if (!seen.insert(name).second) context.fail(item_key, "the name \"" + name + "\" appears twice");
+    names.push_back(std::move(name));
+  }
+  return names;
+}
+
+// A covariance may be a matrix, a list of numbers (its diagonal) or, when 1×1, a plain number.
+Eigen::MatrixXd parse_covariance(const JsonContext& context, const json& value, const std::string& key,
+                                 Eigen::Index size, const std::string& what) {
+  if (value.is_array() && !value.empty() && !value[0].is_array()) {
+    const Eigen::VectorXd diagonal = detail::parse_vector(context, value, key, size, what);
+    return diagonal.asDiagonal();
+  }
+  return detail::parse_matrix(context, value, key, size, size, what);
+}
+
+void check_covariance(const Eigen::MatrixXd& matrix, const std::string& file_name, const std::string& key) {
+  const double scale = matrix.cwiseAbs().maxCoeff();
+  for (Eigen::Index i = 0; i < matrix.rows(); ++i) {
+    for (Eigen::Index j = i + 1; j < matrix.cols(); ++j) {
+      if (std::abs(matrix(i, j) - matrix(j, i)) > kSymmetryTolerance * scale) {
+        std::ostringstream message;
+        message.precision(17);
+        message << "must be symmetric, but entry [" << i << "][" << j << "] is " << matrix(i, j) << " and entry ["
+                << j << "][" << i << "] is " << matrix(j, i);
+        raise_input_error({file_name, 0, 0, key}, message.str());
+      }
+    }
+  }
+  if (matrix.size() == 0) return;
+  const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> solver(matrix, Eigen::EigenvaluesOnly);
+  const Eigen::VectorXd& eigenvalues = solver.eigenvalues();
+  const double largest = eigenvalues.cwiseAbs().maxCoeff();
+  if (eigenvalues.minCoeff() < -kDefinitenessTolerance * largest) {
+    std::ostringstream message;
+    message.precision(6);
+    message << "must be a covariance (positive semidefinite), but it has the negative eigenvalue "
+            << eigenvalues.minCoeff();
+    if (matrix.rows() > 0 && matrix.diagonal().minCoeff() < 0) message << " (a negative variance on the diagonal)";
+    raise_input_error({file_name, 0, 0, key}, message.str());
+  }
+}
+
+void check_finite(const Eigen::MatrixXd& matrix, const std::string& file_name, const std::string& key) {
+  for (Eigen::Index i = 0; i < matrix.rows(); ++i)
+    for (Eigen::Index j = 0; j < matrix.cols(); ++j)
+      if (!std::isfinite(matrix(i, j)))
+        raise_input_error({file_name, 0, 0, key + "[" + std::to_string(i) + "][" + std::to_string(j) + "]"},
+                          "expected a finite number, got " + std::to_string(matrix(i, j)));
+}
+
+std::string shape(Eigen::Index rows, Eigen::Index cols) { return std::to_string(rows) + "×" + std::to_string(cols); }
+
+void check_shape(const Eigen::MatrixXd& matrix, Eigen::Index rows, Eigen::Index cols, const std::string& file_name,
+                 const std::string& key, const std::string& why) {
+  if (matrix.rows() != rows || matrix.cols() != cols)
+    raise_input_error({file_name, 0, 0, key},
+                      "expected a " + shape(rows, cols) + " matrix (" + why + "), got " +
+                          shape(matrix.rows(), matrix.cols()));
+}
+
+}  // namespace
+
+void validate_model(const StateSpaceModel& model, const std::string& file_name) {
+  const Eigen::Index n = model.A.rows();
+  const Eigen::Index m = static_cast<Eigen::Index>(model.observation_names.size());
+  const Eigen::Index p = static_cast<Eigen::Index>(model.input_names.size());
+  if (n == 0) raise_input_error({file_name, 0, 0, "A"}, "the model has no states; expected at least one");
+  if (m == 0) raise_input_error({file_name, 0, 0, "observations"}, "expected at least one observed channel");
+  if (static_cast<Eigen::Index>(model.state_names.size()) != n)
+    raise_input_error({file_name, 0, 0, "states"}, "lists " + std::to_string(model.state_names.size()) +
+                                                        " names but A is " + shape(model.A.rows(), model.A.cols()));
+  check_shape(model.A, n, n, file_name, "A", "states × states");
+  check_shape(model.B, n, p, file_name, "B", "states × inputs");
+  check_shape(model.C, m, n, file_name, "C", "channels × states");
+  check_shape(model.Q, n, n, file_name, "Q", "states × states");
+  check_shape(model.R, m, m, file_name, "R", "channels × channels");
+  check_shape(model.initial_mean, n, 1, file_name, "initial.mean", "one value per state");
+  check_shape(model.initial_covariance, n, n, file_name, "initial.covariance", "states × states");
+  check_finite(model.A, file_name, "A");
+  check_finite(model.B, file_name, "B");
+  check_finite(model.C, file_name, "C");
+  check_finite(model.Q, file_name, "Q");
+  check_finite(model.R, file_name, "R");
+  check_finite(model.initial_mean, file_name, "initial.mean");
+  check_finite(model.initial_covariance, file_name, "initial.covariance");
+  check_covariance(model.Q, file_name, "Q");
+  check_covariance(model.R, file_name, "R");
+  check_covariance(model.initial_covariance, file_name, "initial.covariance");
+  std::set<std::string> columns;
+  for (const auto& name : model.observation_names) columns.insert(name);
+  for (const auto& name : model.input_names)
+    if (!columns.insert(name).second)
+      raise_input_error({file_name, 0, 0, "inputs"}, "the column \"" + name + "\" is both observed and an input");
+  if (!model.time_column.empty() && columns.count(model.time_column))
+    raise_input_error({file_name, 0, 0, "time.column"},
+                      "the column \"" + model.time_column + "\" is also a channel or an input");
+}
+
+StateSpaceModel parse_model(std::string_view json_text, const std::string& file_name) {
+  const json root = detail::parse_json_document(json_text, file_name);
+  const JsonContext context{file_name};
+  if (!root.is_object())
+    context.fail("", "expected a JSON object with the model's keys, got " + detail::describe(root));
+  detail::reject_unknown_keys(context, root, "", kTopLevelKeys);
+
+  if (root.contains("version")) {
+    const json& version = root["version"];
+    if (!version.is_number_integer() || version.get<long long>() != 1)
+      context.fail("version", "this statewise reads model format version 1, got " + version.dump());
+  }
+
+  StateSpaceModel model;
+  if (!root.contains("observations")) context.fail("observations", "missing; expected the list of measured CSV columns");
+  model.observation_names = parse_name_list(context, root["observations"], "observations");
+  if (root.contains("inputs")) model.input_names = parse_name_list(context, root["inputs"], "inputs");
+  if (root.contains("states")) model.state_names = parse_name_list(context, root["states"], "states");
+
+  if (!root.contains("A")) context.fail("A", "missing; expected the states × states transition matrix");
+  const Eigen::Index n = root.contains("states") ? static_cast<Eigen::Index>(model.state_names.size())
+                                                 : detail::matrix_rows(context, root["A"], "A");
+  if (n == 0) context.fail(root.contains("states") ? "states" : "A", "the model has no states; expected at least one");
+  if (model.state_names.empty())
+    for (Eigen::Index i = 0; i < n; ++i) model.state_names.push_back("x" + std::to_string(i + 1));
+  const auto m = static_cast<Eigen::Index>(model.observation_names.size());
+  const auto p = static_cast<Eigen::Index>(model.input_names.size());
+  if (m == 0) context.fail("observations", "expected at least one observed channel");
+
+  model.A = detail::parse_matrix(context, root["A"], "A", n, n, "states × states");
+  if (!root.contains("C")) context.fail("C", "missing; expected the channels × states observation matrix");
+  model.C = detail::parse_matrix(context, root["C"], "C", m, n, "channels × states");
+  if (!root.contains("Q")) context.fail("Q", "missing; expected the states × states process noise covariance");
+  model.Q = parse_covariance(context, root["Q"], "Q", n, "states × states");
+  if (!root.contains("R")) context.fail("R", "missing; expected the channels × channels measurement noise covariance");
+  model.R = parse_covariance(context, root["R"], "R", m, "channels × channels");
+  if (p > 0) {
+    if (!root.contains("B")) context.fail("B", "missing; expected the states × inputs matrix because inputs are given");
+    model.B = detail::parse_matrix(context, root["B"], "B", n, p, "states × inputs");
+  } else {
+    if (root.contains("B")) context.fail("B", "given, but the model lists no inputs; add \"inputs\" or remove B");
+    model.B = Eigen::MatrixXd::Zero(n, 0);
+  }
+
+  model.initial_mean = Eigen::VectorXd::Zero(n);
+  model.initial_covariance = kDefaultInitialVariance * Eigen::MatrixXd::Identity(n, n);
+  if (root.contains("initial")) {
+    const json& initial = root["initial"];
+    if (!initial.is_object())
+      context.fail("initial", "expected an object with \"mean\" and \"covariance\", got " + detail::describe(initial));
+    detail::reject_unknown_keys(context, initial, "initial", {"mean", "covariance"});
+    if (initial.contains("mean"))
+      model.initial_mean = detail::parse_vector(context, initial["mean"], "initial.mean", n, "one value per state");
+    if (initial.contains("covariance"))
+      model.initial_covariance =
+          parse_covariance(context, initial["covariance"], "initial.covariance", n, "states × states");
+  }
+
+  if (root.contains("time")) {
+    const json& time = root["time"];
+    if (!time.is_object()) context.fail("time", "expected an object such as {\"column\": \"time\"}, got " + detail::describe(time));
+    detail::reject_unknown_keys(context, time, "time", {"column"});
+    if (!time.contains("column") || !time["column"].is_string() || time["column"].get<std::string>().empty())
+      context.fail("time.column", "expected the name of the time column");
+    model.time_column = time["column"].get<std::string>();
+  }
+
+  validate_model(model, file_name);
+  return model;
+}
+
+StateSpaceModel load_model(const std::string& path) {
+  std::ifstream file(path, std::ios::binary);
+  if (!file) raise_input_error({path, 0, 0, ""}, "cannot open the model file");
+  std::ostringstream text;
+  text << file.rdbuf();
+  if (file.bad()) raise_input_error({path, 0, 0, ""}, "cannot read the model file");
+  return parse_model(text.str(), path);
+}
+
+std::string write_model(const StateSpaceModel& model) {
+  detail::OrderedJson root = detail::OrderedJson::object();
+  root["version"] = 1;
+  root["states"] = model.state_names;
+  root["observations"] = model.observation_names;
+  if (!model.input_names.empty()) root["inputs"] = model.input_names;
+  if (!model.time_column.empty()) root["time"] = detail::OrderedJson{{"column", model.time_column}};
+  root["A"] = detail::matrix_to_json(model.A);
+  if (model.B.cols() > 0) root["B"] = detail::matrix_to_json(model.B);
+  root["C"] = detail::matrix_to_json(model.C);
+  root["Q"] = detail::matrix_to_json(model.Q);
+  root["R"] = detail::matrix_to_json(model.R);
+  root["initial"] = detail::OrderedJson{{"mean", detail::vector_to_json(model.initial_mean)},
+                     {"covariance", detail::matrix_to_json(model.initial_covariance)}};
+  return detail::dump_json_pretty(root);
+}
+
+}  // namespace statewise

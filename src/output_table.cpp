@@ -1,0 +1,112 @@
+#include "statewise/output_table.h"
+
+#include <charconv>
+#include <cmath>
+
+namespace statewise {
+
+void append_number(std::string& out, double value, int digits) {
+  if (std::isnan(value)) return;
+  char buffer[64];
+  const auto result = digits > 0 ? std::to_chars(buffer, buffer + sizeof buffer, value, std::chars_format::general, digits)
+                                 : std::to_chars(buffer, buffer + sizeof buffer, value);
+  out.append(buffer, result.ptr);
+}
+
+void append_text_field(std::string& out, std::string_view text, char delimiter) {
+  bool needs_quotes = false;
+  for (const char c : text) needs_quotes = needs_quotes || c == delimiter || c == '"' || c == '\n' || c == '\r';
+  if (!needs_quotes) {
+    out.append(text);
+    return;
+  }
+  out += '"';
+  for (const char c : text) {
+    if (c == '"') out += '"';
+    out += c;
+  }
+  out += '"';
+}
+
+EstimateTableWriter::EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format)
+    : model_(model),
+      kind_(kind),
+      format_(format),
+      channel_mean_(model.C.rows()),
+      covariance_times_ct_(model.A.rows(), model.C.rows()) {}
+
+void EstimateTableWriter::append_header(std::string& out) const {
+  const char d = format_.delimiter;
+  bool first = true;
+  auto column = [&](const std::string& name) {
+    if (!first) out += d;
+    first = false;
+    append_text_field(out, name, d);
+  };
+  if (!model_.time_column.empty()) column(model_.time_column);
+  for (const auto& s : model_.state_names) {
+    column(s);
+    column(s + "_sd");
+  }
+  for (const auto& c : model_.observation_names) {
+    column(c + "_est");
+    column(c + "_sd");
+    column(c + "_filled");
+    column(c + "_imputed");
+    if (kind_ == EstimateKind::filtered) {
+      column(c + "_innov");
+      column(c + "_z");
+    }
+  }
+  out += '\n';
+}
+
+void EstimateTableWriter::append_row(std::string& out, std::string_view time_text, const double* values,
+                                     const Eigen::Ref<const Eigen::VectorXd>& mean,
+                                     const Eigen::Ref<const Eigen::MatrixXd>& covariance,
+                                     const InnovationRecord* innovations) const {
+  const char d = format_.delimiter;
+  const int digits = format_.digits;
+  bool first = true;
+  auto separator = [&]() {
+    if (!first) out += d;
+    first = false;
+  };
+  if (!model_.time_column.empty()) {
+    separator();
+    append_text_field(out, time_text, d);
+  }
+  for (Eigen::Index i = 0; i < mean.size(); ++i) {
+    separator();
+    append_number(out, mean(i), digits);
+    out += d;
+    append_number(out, std::sqrt(std::max(covariance(i, i), 0.0)), digits);
+  }
+  // Channel estimate C x and its standard deviation sqrt(diag(C P C')).
+  channel_mean_.noalias() = model_.C * mean;
+  covariance_times_ct_.noalias() = covariance * model_.C.transpose();
+  for (Eigen::Index c = 0; c < channel_mean_.size(); ++c) {
+    const double estimate = channel_mean_(c);
+    const double variance = model_.C.row(c).dot(covariance_times_ct_.col(c));
+    const bool missing = std::isnan(values[c]);
+    separator();
+    append_number(out, estimate, digits);
+    out += d;
+    append_number(out, std::sqrt(std::max(variance, 0.0)), digits);
+    out += d;
+    append_number(out, missing ? estimate : values[c], digits);
+    out += d;
+    out += missing ? '1' : '0';
+    if (kind_ == EstimateKind::filtered) {
+      const double innovation = innovations != nullptr ? innovations->innovation(c) : std::nan("");
+      const double sd = innovations != nullptr ? innovations->innovation_sd(c) : std::nan("");
+      out += d;
+      append_number(out, innovation, digits);
+      out += d;
+      append_number(out, innovation / sd, digits);
+    }
+  }
+  out += '\n';
+}
+
+}  // namespace statewise
