@@ -30,6 +30,8 @@ struct CsvOptions {
 /// skipped. Blank lines are skipped. A record with fewer fields than the header is an error naming
 /// the line; a record with exactly one more field whose last field is empty (a trailing delimiter)
 /// is accepted, as is a header with a trailing delimiter; other extra fields are an error.
+/// A '"' inside an unquoted field is kept as text. Limits, so that garbage input cannot allocate
+/// without bound: a record may be at most 64 MiB long and hold at most 1,000,000 fields.
 class CsvReader {
  public:
   /// Opens `path` ("-" means standard input) and reads the header. `display_name` is used in
