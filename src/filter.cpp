@@ -3,6 +3,8 @@
 #include <cmath>
 #include <numbers>
 
+#include "detail/small_cholesky.h"
+
 namespace statewise {
 
 namespace {
@@ -45,12 +47,13 @@ void predict_moments(const Transition& transition, const Eigen::VectorXd& mean, 
                      const double* inputs, Eigen::VectorXd& predicted_mean, Eigen::MatrixXd& predicted_covariance,
                      Eigen::MatrixXd& workspace) {
   // x_pred = A x + B u
-  predicted_mean.noalias() = transition.A * mean;
+  predicted_mean.noalias() = transition.A.lazyProduct(mean);
   if (transition.B.cols() > 0 && inputs != nullptr)
-    predicted_mean.noalias() += transition.B * Eigen::Map<const Eigen::VectorXd>(inputs, transition.B.cols());
+    predicted_mean.noalias() +=
+        transition.B.lazyProduct(Eigen::Map<const Eigen::VectorXd>(inputs, transition.B.cols()));
   // P_pred = A P A' + Q
-  workspace.noalias() = transition.A * covariance;
-  predicted_covariance.noalias() = workspace * transition.A.transpose();
+  workspace.noalias() = transition.A.lazyProduct(covariance);
+  predicted_covariance.noalias() = workspace.lazyProduct(transition.A.transpose());
   predicted_covariance += transition.Q;
   symmetrize(predicted_covariance);
 }
@@ -75,7 +78,7 @@ KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model) {
     w.gain_transposed.resize(k, n);
     w.v.resize(k);
     w.whitened.resize(k);
-    w.cholesky = Eigen::LLT<Eigen::MatrixXd>(k);
+    w.factor.resize(k, k);
   }
   observed_index_.resize(static_cast<std::size_t>(m));
   reset();
@@ -99,7 +102,6 @@ void KalmanFilter::predict(const Transition& transition, const double* previous_
 }
 
 StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) {
-  const Eigen::Index n = mean_.size();
   const int m = static_cast<int>(model_.C.rows());
   int k = 0;
   for (int c = 0; c < m; ++c) {
@@ -121,39 +123,35 @@ StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) 
     w.v(a) = values[ca] - model_.C.row(ca).dot(mean_);
   }
   // S = C P C' + R
-  w.PCt.noalias() = covariance_ * w.C.transpose();
-  w.S.noalias() = w.C * w.PCt;
+  w.PCt.noalias() = covariance_.lazyProduct(w.C.transpose());
+  w.S.noalias() = w.C.lazyProduct(w.PCt);
   w.S += w.R;
   symmetrize(w.S);
-  w.cholesky.compute(w.S);
-  if (w.cholesky.info() != Eigen::Success) return StepStatus::singular_innovation_covariance;
-  const auto& L = w.cholesky.matrixL();
+  // Cholesky factor of S in the lower triangle of w.factor.
+  w.factor = w.S;
+  if (!detail::cholesky_in_place(w.factor)) return StepStatus::singular_innovation_covariance;
   double log_determinant = 0.0;
-  for (int a = 0; a < k; ++a) {
-    const double diagonal = w.cholesky.matrixLLT()(a, a);
-    if (!(diagonal > 0.0)) return StepStatus::singular_innovation_covariance;
-    log_determinant += 2.0 * std::log(diagonal);
-  }
+  for (int a = 0; a < k; ++a) log_determinant += 2.0 * std::log(w.factor(a, a));
   // K' = S^-1 (P C')'
   w.gain_transposed = w.PCt.transpose();
-  w.cholesky.solveInPlace(w.gain_transposed);
+  detail::cholesky_solve_in_place(w.factor, w.gain_transposed);
   w.K = w.gain_transposed.transpose();
   // NIS = v' S^-1 v = |L^-1 v|^2
   w.whitened = w.v;
-  L.solveInPlace(w.whitened);
+  detail::lower_solve_in_place(w.factor, w.whitened);
   const double nis = w.whitened.squaredNorm();
 
   // Joseph form: P = (I - K C) P (I - K C)' + K R K'
   identity_minus_gain_.setIdentity();
-  identity_minus_gain_.noalias() -= w.K * w.C;
-  product_.noalias() = identity_minus_gain_ * covariance_;
+  identity_minus_gain_.noalias() -= w.K.lazyProduct(w.C);
+  product_.noalias() = identity_minus_gain_.lazyProduct(covariance_);
   Eigen::MatrixXd& updated = predicted_covariance_;  // reused as scratch, sized n×n
-  updated.noalias() = product_ * identity_minus_gain_.transpose();
-  w.KR.noalias() = w.K * w.R;
-  updated.noalias() += w.KR * w.K.transpose();
+  updated.noalias() = product_.lazyProduct(identity_minus_gain_.transpose());
+  w.KR.noalias() = w.K.lazyProduct(w.R);
+  updated.noalias() += w.KR.lazyProduct(w.K.transpose());
   symmetrize(updated);
   predicted_mean_ = mean_;
-  predicted_mean_.noalias() += w.K * w.v;
+  predicted_mean_.noalias() += w.K.lazyProduct(w.v);
   if (!updated.allFinite() || !predicted_mean_.allFinite()) return StepStatus::not_finite;
   covariance_.swap(updated);
   mean_.swap(predicted_mean_);
@@ -166,7 +164,6 @@ StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) 
   record.nis = nis;
   // log N(v; 0, S) = -(k log 2π + log det S + v' S^-1 v) / 2
   record.log_likelihood = -0.5 * (k * std::log(2.0 * std::numbers::pi) + log_determinant + nis);
-  (void)n;
   return StepStatus::ok;
 }
 

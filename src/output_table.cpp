@@ -83,8 +83,8 @@ void EstimateTableWriter::append_row(std::string& out, std::string_view time_tex
     append_number(out, std::sqrt(std::max(covariance(i, i), 0.0)), digits);
   }
   // Channel estimate C x and its standard deviation sqrt(diag(C P C')).
-  channel_mean_.noalias() = model_.C * mean;
-  covariance_times_ct_.noalias() = covariance * model_.C.transpose();
+  channel_mean_.noalias() = model_.C.lazyProduct(mean);
+  covariance_times_ct_.noalias() = covariance.lazyProduct(model_.C.transpose());
   for (Eigen::Index c = 0; c < channel_mean_.size(); ++c) {
     const double estimate = channel_mean_(c);
     const double variance = model_.C.row(c).dot(covariance_times_ct_.col(c));

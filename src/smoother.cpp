@@ -3,6 +3,8 @@
 #include <Eigen/Cholesky>
 #include <Eigen/QR>
 
+#include "detail/small_cholesky.h"
+
 namespace statewise {
 
 StateTrack::StateTrack(int states) : states_(states) {}
@@ -26,7 +28,7 @@ SmoothStatus rts_smooth(StateTrack& track, const TransitionSchedule& schedule, c
   Eigen::VectorXd filtered_mean(n), predicted_mean(n), mean_difference(n);
   Eigen::MatrixXd filtered_covariance(n, n), predicted_covariance(n, n), workspace(n, n);
   Eigen::MatrixXd gain(n, n), gain_transposed(n, n), covariance_difference(n, n), correction(n, n);
-  Eigen::LLT<Eigen::MatrixXd> cholesky(n);
+  Eigen::MatrixXd factor(n, n);
 
   for (std::size_t t = rows - 1; t-- > 0;) {
     const Transition& transition = schedule.step(t);
@@ -37,10 +39,10 @@ SmoothStatus rts_smooth(StateTrack& track, const TransitionSchedule& schedule, c
     predict_moments(transition, filtered_mean, filtered_covariance, row_inputs, predicted_mean, predicted_covariance,
                     workspace);
     // J' = P_{t+1|t}^{-1} A P_{t|t}  (P_{t+1|t} and P_{t|t} are symmetric)
-    gain_transposed.noalias() = transition.A * filtered_covariance;
-    cholesky.compute(predicted_covariance);
-    if (cholesky.info() == Eigen::Success) {
-      cholesky.solveInPlace(gain_transposed);
+    gain_transposed.noalias() = transition.A.lazyProduct(filtered_covariance);
+    factor = predicted_covariance;
+    if (detail::cholesky_in_place(factor)) {
+      detail::cholesky_solve_in_place(factor, gain_transposed);
     } else {
       // Singular prediction covariance: the minimum-norm solution is a valid gain (the smoothed moments
       // do not depend on which generalized inverse is used on the range of P_{t+1|t}).
@@ -50,10 +52,10 @@ SmoothStatus rts_smooth(StateTrack& track, const TransitionSchedule& schedule, c
     }
     gain = gain_transposed.transpose();
     mean_difference = track.mean(t + 1) - predicted_mean;
-    track.mean(t).noalias() = filtered_mean + gain * mean_difference;
+    track.mean(t).noalias() = filtered_mean + gain.lazyProduct(mean_difference);
     covariance_difference = track.covariance(t + 1) - predicted_covariance;
-    correction.noalias() = gain * covariance_difference;
-    workspace.noalias() = correction * gain_transposed;
+    correction.noalias() = gain.lazyProduct(covariance_difference);
+    workspace.noalias() = correction.lazyProduct(gain_transposed);
     auto smoothed = track.covariance(t);
     smoothed = filtered_covariance + workspace;
     for (Eigen::Index i = 0; i < n; ++i)

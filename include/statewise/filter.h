@@ -7,7 +7,6 @@
 
 #include <limits>
 
-#include <Eigen/Cholesky>
 #include <Eigen/Core>
 
 #include "statewise/model.h"
@@ -84,9 +83,8 @@ class KalmanFilter {
  private:
   // Work matrices for k observed channels, allocated once per k so that no row allocates.
   struct Workspace {
-    Eigen::MatrixXd C, R, PCt, S, K, KR, gain_transposed;
+    Eigen::MatrixXd C, R, PCt, S, factor, K, KR, gain_transposed;
     Eigen::VectorXd v, whitened;
-    Eigen::LLT<Eigen::MatrixXd> cholesky;
   };
   StateSpaceModel model_;
   Eigen::VectorXd mean_;
