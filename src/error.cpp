@@ -8,10 +8,17 @@ namespace statewise {
 std::string format_location(const SourceLocation& location) {
   std::string prefix = location.file.empty() ? std::string("<input>") : location.file;
   if (location.line > 0) {
-    prefix += ":" + std::to_string(location.line);
-    if (location.column > 0) prefix += ":" + std::to_string(location.column);
+    // Appended piece by piece: `":" + std::to_string(...)` trips a known false positive of
+    // GCC 12's -Wrestrict at -O2, which -Werror turns into a build failure.
+    prefix += ':';
+    prefix += std::to_string(location.line);
+    if (location.column > 0) {
+      prefix += ':';
+      prefix += std::to_string(location.column);
+    }
   } else if (!location.key.empty()) {
-    prefix += ": " + location.key;
+    prefix += ": ";
+    prefix += location.key;
   }
   return prefix;
 }
