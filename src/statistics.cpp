@@ -339,4 +339,160 @@ std::pair<double, double> chi_square_interval(double dof, double coverage) {
           chi_square_quantile_from_tails(dof, 1.0 - tail, tail)};
 }
 
+// ---------------------------------------------------------------------------------------------
+// Residual tests.
+
+namespace {
+
+// Mean-removed sums behind the sample autocorrelation, with NaN entries treated as missing.
+//
+// Without missing values this is the standard estimator (Box & Jenkins, Time Series Analysis,
+// 1970, chapter 2) used by Ljung & Box: r_k = sum_{t=1..n-k} d_t d_{t+k} / sum_{t=1..n} d_t^2 with
+// d_t = x_t - mean. With missing values we use a common practical treatment (the one of R's
+// stats::acf with na.action = na.pass, as we recall its source): the mean and the lag-0 sum use
+// the m present values; the lag-k sum
+// runs over the n_k pairs where both values are present; and each sum is scaled as the complete-data
+// estimator scales it, i.e. the lag-k autocovariance is S_k / (n_k + k) (complete data: S_k / n)
+// and the variance is S_0 / m, so r_k = (S_k / S_0) * m / (n_k + k). With no missing value
+// m = n_k + k = n and the factor is exactly 1.
+struct LaggedSums {
+  std::vector<double> correlation;  // r_0 .. r_max_lag (NaN where undefined)
+  std::vector<std::size_t> pairs;   // n_0 .. n_max_lag, complete pairs per lag (n_0 = m)
+  bool usable = false;              // at least two present values and nonzero variance
+};
+
+LaggedSums lagged_sums(std::span<const double> series, int max_lag) {
+  LaggedSums sums;
+  if (max_lag < 0) return sums;
+  const auto lag_count = static_cast<std::size_t>(max_lag) + 1;
+  sums.correlation.assign(lag_count, kNaN);
+  sums.pairs.assign(lag_count, 0);
+
+  std::size_t present = 0;
+  double total = 0.0;
+  double smallest = kInfinity;
+  double largest = -kInfinity;
+  for (const double x : series) {
+    if (std::isnan(x)) continue;
+    ++present;
+    total += x;
+    smallest = std::min(smallest, x);
+    largest = std::max(largest, x);
+  }
+  sums.pairs[0] = present;
+  // A constant series has zero variance and no defined autocorrelation. Compare the values
+  // themselves: the deviations from a rounded mean need not be exactly zero.
+  if (present < 2 || !(smallest < largest)) return sums;
+  const double mean = total / static_cast<double>(present);
+
+  std::vector<double> deviation(series.size());
+  double sum_squares = 0.0;
+  for (std::size_t t = 0; t < series.size(); ++t) {
+    deviation[t] = series[t] - mean;  // stays NaN for a missing value
+    if (!std::isnan(deviation[t])) sum_squares += deviation[t] * deviation[t];
+  }
+  if (!(sum_squares > 0.0) || !std::isfinite(sum_squares)) return sums;
+  sums.usable = true;
+  sums.correlation[0] = 1.0;
+
+  for (std::size_t k = 1; k < lag_count && k < series.size(); ++k) {
+    double lag_sum = 0.0;
+    std::size_t pairs = 0;
+    for (std::size_t t = 0; t + k < series.size(); ++t) {
+      const double product = deviation[t] * deviation[t + k];
+      if (std::isnan(product)) continue;
+      lag_sum += product;
+      ++pairs;
+    }
+    sums.pairs[k] = pairs;
+    if (pairs == 0) continue;
+    const double scale = static_cast<double>(present) / static_cast<double>(pairs + k);
+    sums.correlation[k] = lag_sum / sum_squares * scale;
+  }
+  return sums;
+}
+
+}  // namespace
+
+std::vector<double> autocorrelation(std::span<const double> series, int max_lag) {
+  return lagged_sums(series, max_lag).correlation;
+}
+
+int default_ljung_box_lags(std::size_t n) { return static_cast<int>(std::clamp<std::size_t>(n / 5, 1, 10)); }
+
+LjungBoxResult ljung_box(std::span<const double> series, int lags, int fitted_parameters) {
+  LjungBoxResult result{kNaN, lags, lags - fitted_parameters, kNaN, 0};
+  if (lags < 1) return result;
+  const LaggedSums sums = lagged_sums(series, lags);
+  for (std::size_t k = 1; k < sums.pairs.size(); ++k) result.pairs_used += sums.pairs[k];
+  if (!sums.usable) return result;
+
+  // Ljung & Box, Biometrika 65(2), 297-303 (1978): Q = n(n+2) sum_{k=1..h} r_k^2 / (n-k).
+  // n(n+2)/(n-k) is the reciprocal of the small-sample variance of r_k; with missing values each lag
+  // uses its own effective length N_k = n_k + k (the n the complete-data estimator of r_k would
+  // have), so the weight N_k (N_k + 2) / n_k is again about 1 / var(r_k). Without missing values
+  // N_k = n and n_k = n - k: the textbook statistic.
+  double statistic = 0.0;
+  for (std::size_t k = 1; k < sums.correlation.size(); ++k) {
+    const double r = sums.correlation[k];
+    if (std::isnan(r)) return result;  // no complete pair at this lag: too few values for h lags
+    const auto pairs = static_cast<double>(sums.pairs[k]);
+    const double length = pairs + static_cast<double>(k);
+    statistic += length * (length + 2.0) * (r * r / pairs);
+  }
+  result.statistic = statistic;
+  // Under whiteness Q is approximately chi-square with h - (fitted parameters) degrees of freedom
+  // (Ljung & Box 1978, section 2; Box & Pierce, JASA 65, 1970, for the reduction by fitted ARMA
+  // parameters).
+  if (result.degrees_of_freedom >= 1) {
+    result.p_value = chi_square_survival(statistic, static_cast<double>(result.degrees_of_freedom));
+  }
+  return result;
+}
+
+JarqueBeraResult jarque_bera(std::span<const double> sample) {
+  JarqueBeraResult result{kNaN, kNaN, kNaN, kNaN, 0};
+  double total = 0.0;
+  double smallest = kInfinity;
+  double largest = -kInfinity;
+  for (const double x : sample) {
+    if (std::isnan(x)) continue;
+    ++result.n;
+    total += x;
+    smallest = std::min(smallest, x);
+    largest = std::max(largest, x);
+  }
+  if (result.n < 2 || !(smallest < largest)) return result;  // no spread: moments ratios undefined
+  const auto n = static_cast<double>(result.n);
+  const double mean = total / n;
+
+  // Population (biased) central moments m_j = (1/n) sum (x - mean)^j, as in Jarque & Bera,
+  // Economics Letters 6(3), 255-259 (1980).
+  double m2 = 0.0;
+  double m3 = 0.0;
+  double m4 = 0.0;
+  for (const double x : sample) {
+    if (std::isnan(x)) continue;
+    const double d = x - mean;
+    const double d2 = d * d;
+    m2 += d2;
+    m3 += d2 * d;
+    m4 += d2 * d2;
+  }
+  m2 /= n;
+  m3 /= n;
+  m4 /= n;
+  if (!(m2 > 0.0) || !std::isfinite(m4)) return result;
+
+  // S = m3 / m2^(3/2), K = m4 / m2^2, JB = n/6 (S^2 + (K - 3)^2 / 4) (Jarque & Bera 1980),
+  // asymptotically chi-square with 2 degrees of freedom under normality.
+  const double skewness = m3 / (m2 * std::sqrt(m2));
+  const double excess = m4 / (m2 * m2) - 3.0;
+  result.skewness = skewness;
+  result.excess_kurtosis = excess;
+  result.statistic = n / 6.0 * (skewness * skewness + 0.25 * excess * excess);
+  result.p_value = chi_square_survival(result.statistic, 2.0);
+  return result;
+}
+
 }  // namespace statewise

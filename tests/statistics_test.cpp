@@ -398,4 +398,220 @@ TEST_CASE("distribution functions return NaN outside their domain") {
   CHECK(std::isnan(chi_square_interval(0.0, 0.9).first));
 }
 
+// ------------------------------------------------------------------------------------------------
+// Ljung-Box
+
+TEST_CASE("ljung_box on eight values, worked by hand") {
+  // x = 1 3 2 5 4 6 3 4, n = 8, mean 28/8 = 3.5
+  // d = x - mean = -2.5 -0.5 -1.5 1.5 0.5 2.5 -0.5 0.5
+  // sum d^2 = 6.25 + 0.25 + 2.25 + 2.25 + 0.25 + 6.25 + 0.25 + 0.25 = 18
+  // lag 1: 1.25 + 0.75 - 2.25 + 0.75 + 1.25 - 1.25 - 0.25 = 0.25          -> r1 = 0.25/18 = 1/72
+  // lag 2: 3.75 - 0.75 - 0.75 + 3.75 - 0.25 + 1.25 = 7                      -> r2 = 7/18
+  // Q = n(n+2) (r1^2/(n-1) + r2^2/(n-2)) = 80 (1/(5184*7) + (49/324)/6)
+  //   = 80 (3 + 2744)/108864 = 13735/6804 = 2.018665490887713 (checked with Python fractions)
+  // p = P(chi2(2) > Q) = exp(-Q/2) = 0.36446208744347397 (scipy 1.10.1: scipy.stats.chi2.sf(Q, 2))
+  // Tolerance 1e-14: a few roundings in sums of exactly representable values and two divisions.
+  const std::vector<double> x = {1, 3, 2, 5, 4, 6, 3, 4};
+  const LjungBoxResult result = ljung_box(x, 2);
+  CHECK_RELATIVE(result.statistic, 13735.0 / 6804.0, 1e-14);
+  CHECK_RELATIVE(result.p_value, 0.36446208744347397, 1e-14);
+  CHECK(result.lags == 2);
+  CHECK(result.degrees_of_freedom == 2);
+  CHECK(result.pairs_used == 13);  // 7 pairs at lag 1 + 6 at lag 2
+
+  const std::vector<double> r = autocorrelation(x, 2);
+  REQUIRE(r.size() == 3);
+  CHECK(r[0] == 1.0);
+  CHECK_RELATIVE(r[1], 1.0 / 72.0, 1e-15);
+  CHECK_RELATIVE(r[2], 7.0 / 18.0, 1e-15);
+}
+
+TEST_CASE("ljung_box matches a numpy evaluation of the textbook formula") {
+  // Fixed 20-value series; numpy 1.24.2, scipy 1.10.1:
+  //   x = np.asarray(y, float); n = len(x); d = x - x.mean(); c0 = np.sum(d*d)
+  //   r = np.array([np.sum(d[:n-k]*d[k:])/c0 for k in range(1, 6)])
+  //   Q = n*(n+2)*np.sum(r**2/(n - np.arange(1, 6)))        -> 11.457565361534439
+  //   scipy.stats.chi2.sf(Q, 5) -> 0.043025777531465074, scipy.stats.chi2.sf(Q, 4) -> 0.02187549030600944
+  // Tolerance 1e-12: numpy sums pairwise and we sum in order; the lag sums cancel (|r_k| down to
+  // 0.04), which amplifies summation differences of ~n eps by about 25.
+  const std::vector<double> y = {0.3, -1.2, 0.8,  1.5,  -0.4, 0.1, -0.9, 2.1, 0.6,  -1.7,
+                                 0.2, 1.1,  -0.3, -0.8, 1.4,  0.5, -1.1, 0.9, -0.2, 0.7};
+  const LjungBoxResult result = ljung_box(y, 5);
+  CHECK_RELATIVE(result.statistic, 11.457565361534439, 1e-12);
+  CHECK_RELATIVE(result.p_value, 0.043025777531465074, 1e-12);
+  CHECK(result.pairs_used == 19 + 18 + 17 + 16 + 15);
+
+  // One fitted parameter removes one degree of freedom; the statistic is unchanged.
+  const LjungBoxResult fitted = ljung_box(y, 5, 1);
+  CHECK(fitted.degrees_of_freedom == 4);
+  CHECK(fitted.statistic == result.statistic);
+  CHECK_RELATIVE(fitted.p_value, 0.02187549030600944, 1e-12);
+
+  // Same numpy estimator for r_1..r_5, as printed by numpy 1.24.2.
+  const std::vector<double> expected_r = {-0.28667502088554725, -0.5119465329991647, 0.20827067669172927,
+                                          0.26777360066833755, -0.04260651629072682};
+  const std::vector<double> r = autocorrelation(y, 5);
+  REQUIRE(r.size() == 6);
+  for (std::size_t k = 1; k <= 5; ++k) {
+    CAPTURE(k);
+    CHECK_RELATIVE(r[k], expected_r[k - 1], 1e-12);
+  }
+}
+
+TEST_CASE("ljung_box keeps tiny p-values of strongly correlated series") {
+  // x_t = sin(0.3 t), t = 0..29, 4 lags. numpy 1.24.2 with the expression of the previous test:
+  //   Q = 72.33291837473091; scipy 1.10.1: scipy.stats.chi2.sf(Q, 4) = 7.298902010776192e-15.
+  // Tolerances: Q 1e-12 as above; the p-value's relative condition number in Q is about Q/2 = 36,
+  // so 1e-12 on Q allows 4e-11 on p: tolerance 1e-10.
+  std::vector<double> x(30);
+  for (std::size_t t = 0; t < x.size(); ++t) x[t] = std::sin(0.3 * static_cast<double>(t));
+  const LjungBoxResult result = ljung_box(x, 4);
+  CHECK_RELATIVE(result.statistic, 72.33291837473091, 1e-12);
+  CHECK_RELATIVE(result.p_value, 7.298902010776192e-15, 1e-10);
+}
+
+TEST_CASE("ljung_box with missing values uses the pairs where both values are present") {
+  // x = 1 NaN 3 5 2 4: m = 5 present values, mean 15/5 = 3, d = -2 NaN 0 2 -1 1, S0 = 4+0+4+1+1 = 10
+  // lag 1 pairs (t, t+1) with both present: (2,3) 0*2, (3,4) 2*-1, (4,5) -1*1  -> n1 = 3, S1 = -3
+  //   r1 = (S1 / (n1 + 1)) / (S0 / m) = (-3/4) / 2 = -0.375
+  // lag 2 pairs: (0,2) -2*0, (2,4) 0*-1, (3,5) 2*1                          -> n2 = 3, S2 = 2
+  //   r2 = (2/5) / 2 = 0.2
+  // Q = sum_k N_k (N_k + 2) r_k^2 / n_k with N_k = n_k + k:
+  //   4*6*0.140625/3 + 5*7*0.04/3 = 1.125 + 7/15 = 191/120 (checked with Python fractions)
+  const std::vector<double> x = {1, kNaN, 3, 5, 2, 4};
+  const LjungBoxResult result = ljung_box(x, 2);
+  CHECK_RELATIVE(result.statistic, 191.0 / 120.0, 1e-15);
+  CHECK(result.pairs_used == 6);
+  const std::vector<double> r = autocorrelation(x, 2);
+  CHECK_RELATIVE(r[1], -0.375, 1e-15);
+  CHECK_RELATIVE(r[2], 0.2, 1e-15);
+
+  // Missing values at either end change nothing: no pair is lost and the scaling N_k = n_k + k
+  // stays as for the trimmed series.
+  const std::vector<double> eight = {1, 3, 2, 5, 4, 6, 3, 4};
+  const std::vector<double> padded = {kNaN, 1, 3, 2, 5, 4, 6, 3, 4, kNaN, kNaN};
+  CHECK(ljung_box(padded, 2).statistic == ljung_box(eight, 2).statistic);
+  CHECK(ljung_box(padded, 2).pairs_used == 13);
+}
+
+TEST_CASE("default_ljung_box_lags is min(10, n/5) and at least 1") {
+  CHECK(default_ljung_box_lags(0) == 1);
+  CHECK(default_ljung_box_lags(4) == 1);
+  CHECK(default_ljung_box_lags(10) == 2);
+  CHECK(default_ljung_box_lags(49) == 9);
+  CHECK(default_ljung_box_lags(50) == 10);
+  CHECK(default_ljung_box_lags(1000000) == 10);
+}
+
+// ------------------------------------------------------------------------------------------------
+// Jarque-Bera
+
+TEST_CASE("jarque_bera on five values, worked by hand") {
+  // x = 1 2 3 4 10, n = 5, mean 4, d = -3 -2 -1 0 6
+  // m2 = (9 + 4 + 1 + 0 + 36)/5 = 10, m3 = (-27 - 8 - 1 + 0 + 216)/5 = 36,
+  // m4 = (81 + 16 + 1 + 0 + 1296)/5 = 278.8
+  // S = 36 / 10^1.5 = 1.1384199576606167, S^2 = 1.296, K = 278.8/100 = 2.788, K - 3 = -0.212
+  // JB = 5/6 (1.296 + 0.044944/4) = 5/6 * 1.307236 = 326809/300000 = 1.0893633333333333
+  // scipy 1.10.1: scipy.stats.jarque_bera([1, 2, 3, 4, 10]) -> statistic 1.0893633333333337,
+  //   pvalue 0.5800263956901164; scipy.stats.skew(x) -> 1.1384199576606167,
+  //   scipy.stats.kurtosis(x) -> -0.21199999999999974 (both biased, Fisher's excess kurtosis).
+  // Tolerance 1e-14 (1e-13 for the excess kurtosis, which cancels 2.788 - 3 and so loses a digit).
+  const std::vector<double> x = {1, 2, 3, 4, 10};
+  const JarqueBeraResult result = jarque_bera(x);
+  CHECK(result.n == 5);
+  CHECK_RELATIVE(result.statistic, 326809.0 / 300000.0, 1e-14);
+  CHECK_RELATIVE(result.statistic, 1.0893633333333337, 1e-14);
+  CHECK_RELATIVE(result.p_value, 0.5800263956901164, 1e-14);
+  CHECK_RELATIVE(result.skewness, 1.1384199576606167, 1e-14);
+  CHECK_RELATIVE(result.excess_kurtosis, -0.212, 1e-13);
+}
+
+TEST_CASE("jarque_bera matches scipy and skips missing values") {
+  // The 20-value series of the Ljung-Box test. scipy 1.10.1: scipy.stats.jarque_bera(y) ->
+  //   statistic 0.47362941111131734, pvalue 0.7891374972653754; scipy.stats.skew(y) ->
+  //   -0.05862472631917642; scipy.stats.kurtosis(y) -> -0.7447199871022581.
+  // Tolerance 1e-12: m3 is a sum of cubes of both signs that cancels to 6% of its terms.
+  const std::vector<double> y = {0.3, -1.2, 0.8,  1.5,  -0.4, 0.1, -0.9, 2.1, 0.6,  -1.7,
+                                 0.2, 1.1,  -0.3, -0.8, 1.4,  0.5, -1.1, 0.9, -0.2, 0.7};
+  const JarqueBeraResult result = jarque_bera(y);
+  CHECK(result.n == 20);
+  CHECK_RELATIVE(result.statistic, 0.47362941111131734, 1e-12);
+  CHECK_RELATIVE(result.p_value, 0.7891374972653754, 1e-12);
+  CHECK_RELATIVE(result.skewness, -0.05862472631917642, 1e-12);
+  CHECK_RELATIVE(result.excess_kurtosis, -0.7447199871022581, 1e-12);
+
+  std::vector<double> with_gaps = y;
+  with_gaps.insert(with_gaps.begin() + 3, kNaN);
+  with_gaps.push_back(kNaN);
+  const JarqueBeraResult gaps = jarque_bera(with_gaps);
+  CHECK(gaps.n == 20);
+  CHECK(gaps.statistic == result.statistic);
+}
+
+// ------------------------------------------------------------------------------------------------
+// Degenerate inputs: NaN results, no crash.
+
+TEST_CASE("residual tests on too few values, constant series and all-missing series") {
+  const std::vector<double> empty;
+  const std::vector<double> two = {1.0, 2.0};
+  const std::vector<double> constant(50, 0.1);
+  const std::vector<double> missing(12, kNaN);
+
+  SUBCASE("too few values for the lags") {
+    const LjungBoxResult short_series = ljung_box(two, 5);
+    CHECK(std::isnan(short_series.statistic));
+    CHECK(std::isnan(short_series.p_value));
+    CHECK(short_series.pairs_used == 1);  // only lag 1 has a pair
+    CHECK(std::isnan(ljung_box(empty, 1).statistic));
+    CHECK(std::isnan(ljung_box(two, 0).statistic));  // lags < 1
+    const std::vector<double> r = autocorrelation(two, 3);
+    REQUIRE(r.size() == 4);
+    CHECK(r[0] == 1.0);
+    CHECK(r[1] == -0.5);  // d = -0.5 0.5: S1 = -0.25, S0 = 0.5
+    CHECK(std::isnan(r[2]));
+    CHECK(std::isnan(r[3]));
+    CHECK(autocorrelation(two, -1).empty());
+    CHECK(std::isnan(jarque_bera(std::vector<double>{3.0}).statistic));
+    CHECK(jarque_bera(std::vector<double>{3.0}).n == 1);
+    CHECK(std::isnan(jarque_bera(empty).statistic));
+  }
+
+  SUBCASE("fitted parameters leave no degrees of freedom") {
+    const std::vector<double> x = {1, 3, 2, 5, 4, 6, 3, 4};
+    const LjungBoxResult result = ljung_box(x, 2, 2);
+    CHECK(result.degrees_of_freedom == 0);
+    CHECK(std::isfinite(result.statistic));
+    CHECK(std::isnan(result.p_value));
+  }
+
+  SUBCASE("constant series: zero variance") {
+    const LjungBoxResult result = ljung_box(constant, 5);
+    CHECK(std::isnan(result.statistic));
+    CHECK(std::isnan(result.p_value));
+    for (const double r : autocorrelation(constant, 3)) CHECK(std::isnan(r));
+    const JarqueBeraResult jb = jarque_bera(constant);
+    CHECK(jb.n == 50);
+    CHECK(std::isnan(jb.statistic));
+    CHECK(std::isnan(jb.skewness));
+    CHECK(std::isnan(jb.p_value));
+  }
+
+  SUBCASE("infinite values give NaN, not a crash") {
+    const std::vector<double> x = {1.0, std::numeric_limits<double>::infinity(), 2.0, 3.0};
+    CHECK(std::isnan(ljung_box(x, 1).statistic));
+    CHECK(std::isnan(jarque_bera(x).statistic));
+  }
+
+  SUBCASE("all values missing") {
+    const LjungBoxResult result = ljung_box(missing, 3);
+    CHECK(std::isnan(result.statistic));
+    CHECK(std::isnan(result.p_value));
+    CHECK(result.pairs_used == 0);
+    for (const double r : autocorrelation(missing, 2)) CHECK(std::isnan(r));
+    const JarqueBeraResult jb = jarque_bera(missing);
+    CHECK(jb.n == 0);
+    CHECK(std::isnan(jb.statistic));
+  }
+}
+
 }  // namespace statewise
