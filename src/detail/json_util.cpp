@@ -52,16 +52,16 @@ void dump_into(const OrderedJson& value, int indent, std::string& out) {
     }
     out += "\n" + pad + "}";
   } else if (is_scalar_list(value)) {
-    out += value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
-    // nlohmann writes "[1,2]"; add a space after each comma for readability.
-    std::string spaced;
-    const std::size_t start = out.rfind('[');
-    for (std::size_t i = start; i < out.size(); ++i) {
-      spaced += out[i];
-      if (out[i] == ',') spaced += ' ';
+    // One line, a space after each separating comma: "[1, 2]". Items are written one by one so that
+    // commas and brackets inside text items are left alone.
+    out += '[';
+    bool first = true;
+    for (const auto& item : value) {
+      if (!first) out += ", ";
+      first = false;
+      out += item.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
     }
-    out.resize(start);
-    out += spaced;
+    out += ']';
   } else if (value.is_array()) {
     if (value.empty()) {
       out += "[]";
