@@ -27,6 +27,31 @@ SourceLocation location_of_byte(std::string_view text, std::size_t byte, const s
   return location;
 }
 
+// Raises InputError at the bracket that opens level kMaximumNesting + 1 (the top-level value is
+// level 1). Scanned before parsing so that the message can give the line and column.
+void check_nesting(std::string_view text, const std::string& file_name) {
+  int depth = 0;
+  bool in_string = false;
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char c = text[i];
+    if (in_string) {
+      if (c == '\\') {
+        ++i;  // the escaped character cannot end the string
+      } else if (c == '"') {
+        in_string = false;
+      }
+    } else if (c == '"') {
+      in_string = true;
+    } else if (c == '[' || c == '{') {
+      if (++depth > kMaximumNesting)
+        raise_input_error(location_of_byte(text, i, file_name),
+                          "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+    } else if ((c == ']' || c == '}') && depth > 0) {
+      --depth;
+    }
+  }
+}
+
 bool is_scalar_list(const OrderedJson& value) {
   if (!value.is_array()) return false;
   for (const auto& item : value)
@@ -89,12 +114,10 @@ void JsonContext::fail(const std::string& key, const std::string& message) const
 json parse_json_document(std::string_view text, const std::string& file_name) {
   if (text.find_first_not_of(" \t\r\n") == std::string_view::npos)
     raise_input_error({file_name, 0, 0, ""}, "the file is empty; expected a JSON object");
+  check_nesting(text, file_name);
   std::vector<std::set<std::string>> keys_per_level;
   std::vector<std::string> path;
-  auto callback = [&](int depth, json::parse_event_t event, json& parsed) {
-    if (depth > kMaximumNesting)
-      raise_input_error({file_name, 0, 0, ""},
-                        "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+  auto callback = [&](int /*depth*/, json::parse_event_t event, json& parsed) {
     switch (event) {
       case json::parse_event_t::object_start:
         keys_per_level.emplace_back();
