@@ -11,6 +11,7 @@ using nlohmann::json;
 
 namespace {
 constexpr int kMaximumNesting = 64;
+constexpr std::size_t kMaximumNumberInMessage = 40;  // longer number texts are shortened in messages
 
 // 1-based line and column of a byte offset in the text.
 SourceLocation location_of_byte(std::string_view text, std::size_t byte, const std::string& file_name) {
@@ -115,23 +116,53 @@ json parse_json_document(std::string_view text, const std::string& file_name) {
   if (text.find_first_not_of(" \t\r\n") == std::string_view::npos)
     raise_input_error({file_name, 0, 0, ""}, "the file is empty; expected a JSON object");
   check_nesting(text, file_name);
-  std::vector<std::set<std::string>> keys_per_level;
-  std::vector<std::string> path;
+  // The containers being parsed, outermost first, to name the key path of a duplicate key or of a
+  // number out of range (nlohmann reports neither with a position).
+  struct Frame {
+    bool object = false;
+    std::string key;        // object: the key whose value is being parsed
+    std::size_t index = 0;  // array: the index of the item being parsed
+    std::set<std::string> keys;
+  };
+  std::vector<Frame> frames;
+  const auto path = [&frames]() {
+    std::string joined;
+    for (const Frame& frame : frames) {
+      if (!frame.object) {
+        joined += "[" + std::to_string(frame.index) + "]";
+      } else if (!frame.key.empty()) {
+        if (!joined.empty()) joined += ".";
+        joined += frame.key;
+      }
+    }
+    return joined;
+  };
+  const auto item_done = [&frames]() {
+    if (!frames.empty() && !frames.back().object) ++frames.back().index;
+  };
   auto callback = [&](int /*depth*/, json::parse_event_t event, json& parsed) {
     switch (event) {
       case json::parse_event_t::object_start:
-        keys_per_level.emplace_back();
+        frames.push_back(Frame{true, {}, 0, {}});
+        break;
+      case json::parse_event_t::array_start:
+        frames.push_back(Frame{false, {}, 0, {}});
         break;
       case json::parse_event_t::object_end:
-        if (!keys_per_level.empty()) keys_per_level.pop_back();
+      case json::parse_event_t::array_end:
+        if (!frames.empty()) frames.pop_back();
+        item_done();
         break;
       case json::parse_event_t::key: {
-        const std::string key = parsed.get<std::string>();
-        if (!keys_per_level.empty() && !keys_per_level.back().insert(key).second)
-          raise_input_error({file_name, 0, 0, key}, "the key appears twice in the same object; keep one");
+        if (frames.empty()) break;
+        Frame& frame = frames.back();
+        frame.key = parsed.get<std::string>();
+        if (!frame.keys.insert(frame.key).second)
+          raise_input_error({file_name, 0, 0, path()}, "the key appears twice in the same object; keep one");
         break;
       }
-      default:
+      case json::parse_event_t::value:
+        item_done();
         break;
     }
     return true;
@@ -146,6 +177,22 @@ json parse_json_document(std::string_view text, const std::string& file_name) {
     const SourceLocation location =
         location_of_byte(text, error.byte > 0 ? error.byte - 1 : 0, file_name);
     raise_input_error(location, "invalid JSON: " + detail_text);
+  } catch (const json::out_of_range& error) {
+    // Error 406, "number overflow parsing '1e999'": a number beyond the range of a double. It is
+    // reported like any other non-finite entry, at the key path of the number.
+    std::string what = error.what();
+    const std::size_t open = what.find('\'');
+    const std::size_t close = what.rfind('\'');
+    if (error.id == 406 && open != std::string::npos && close > open) {
+      std::string number = what.substr(open + 1, close - open - 1);
+      if (number.size() > kMaximumNumberInMessage) number = number.substr(0, kMaximumNumberInMessage - 3) + "...";
+      const std::string key = path();
+      raise_input_error({file_name, 0, 0, key.empty() ? std::string("top level") : key},
+                        "expected a finite number, got " + number + " (beyond the range of a double)");
+    }
+    const std::size_t bracket = what.find("] ");
+    raise_input_error({file_name, 0, 0, ""},
+                      "invalid JSON: " + (bracket == std::string::npos ? what : what.substr(bracket + 2)));
   } catch (const json::exception& error) {
     std::string what = error.what();
     const std::size_t bracket = what.find("] ");

@@ -21,7 +21,8 @@ struct JsonContext {
 };
 
 /// Parses a JSON document. Syntax errors and nesting deeper than 64 levels (the top-level value is
-/// level 1) raise InputError with file:line:column; a duplicate key raises it with the key.
+/// level 1) raise InputError with file:line:column; a duplicate key and a number beyond the range of
+/// a double (1e999) raise it with the key path.
 nlohmann::json parse_json_document(std::string_view text, const std::string& file_name);
 
 /// A short description of a JSON value for messages: `the text "abc"`, `the number 3`, `a list of 2 items`.
