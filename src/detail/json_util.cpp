@@ -213,8 +213,12 @@ std::string describe(const json& value) {
     case json::value_t::number_unsigned:
     case json::value_t::number_float:
       return "the number " + value.dump();
-    case json::value_t::array:
-      return "a list of " + std::to_string(value.size()) + (value.size() == 1 ? " item" : " items");
+    case json::value_t::array: {
+      bool all_numbers = true;
+      for (const auto& item : value) all_numbers = all_numbers && item.is_number();
+      const char* noun = all_numbers ? (value.size() == 1 ? " number" : " numbers") : (value.size() == 1 ? " item" : " items");
+      return "a list of " + std::to_string(value.size()) + noun;
+    }
     case json::value_t::object:
       return "an object";
     default:
@@ -247,6 +251,16 @@ double parse_number(const JsonContext& context, const json& value, const std::st
   return number;
 }
 
+namespace {
+// "2×3" when `value` is a list of equally long lists (a matrix of some shape), else empty.
+std::string shape_of(const json& value) {
+  if (!value.is_array() || value.empty()) return "";
+  for (const auto& row : value)
+    if (!row.is_array() || row.size() != value[0].size()) return "";
+  return std::to_string(value.size()) + "×" + std::to_string(value[0].size());
+}
+}  // namespace
+
 Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index rows, Eigen::Index cols, const std::string& what) {
   const std::string expected = std::to_string(rows) + "×" + std::to_string(cols) + " matrix (" + what + ")";
@@ -254,8 +268,13 @@ Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, cons
     if (rows != 1 || cols != 1) context.fail(key, "expected a " + expected + ", got a single number");
     return Eigen::MatrixXd::Constant(1, 1, parse_number(context, value, key));
   }
-  if (!value.is_array())
+  if (!value.is_array() || (!value.empty() && !value[0].is_array()))
     context.fail(key, "expected a " + expected + " as a list of rows, got " + describe(value));
+  // A well-formed matrix of the wrong shape is reported with both shapes.
+  const std::string shape = shape_of(value);
+  if (!shape.empty() && (static_cast<Eigen::Index>(value.size()) != rows ||
+                         static_cast<Eigen::Index>(value[0].size()) != cols))
+    context.fail(key, "expected a " + expected + ", got a " + shape + " matrix");
   if (static_cast<Eigen::Index>(value.size()) != rows)
     context.fail(key, "expected a " + expected + ", got " + std::to_string(value.size()) + " rows");
   Eigen::MatrixXd matrix(rows, cols);
