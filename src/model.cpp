@@ -1,10 +1,14 @@
 #include "statewise/model.h"
 
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <cerrno>
 #include <charconv>
 #include <cmath>
-#include <fstream>
 #include <set>
 #include <sstream>
+#include <system_error>
 
 #include <Eigen/Eigenvalues>
 #include <nlohmann/json.hpp>
@@ -220,12 +224,27 @@ StateSpaceModel parse_model(std::string_view json_text, const std::string& file_
 }
 
 StateSpaceModel load_model(const std::string& path) {
-  std::ifstream file(path, std::ios::binary);
-  if (!file) raise_input_error({path, 0, 0, ""}, "cannot open the model file");
-  std::ostringstream text;
-  text << file.rdbuf();
-  if (file.bad()) raise_input_error({path, 0, 0, ""}, "cannot read the model file");
-  return parse_model(text.str(), path);
+  // POSIX reads, as in the CSV reader, so that the system's reason ("Is a directory") is reported.
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0)
+    raise_input_error({path, 0, 0, ""},
+                      "cannot open the model file (" + std::system_category().message(errno) + ")");
+  std::string text;
+  char chunk[1 << 16];
+  for (;;) {
+    const ssize_t count = ::read(fd, chunk, sizeof chunk);
+    if (count < 0 && errno == EINTR) continue;
+    if (count < 0) {
+      const int error = errno;
+      ::close(fd);
+      raise_input_error({path, 0, 0, ""},
+                        "cannot read the model file (" + std::system_category().message(error) + ")");
+    }
+    if (count == 0) break;
+    text.append(chunk, static_cast<std::size_t>(count));
+  }
+  ::close(fd);
+  return parse_model(text, path);
 }
 
 std::string write_model(const StateSpaceModel& model) {
