@@ -47,8 +47,8 @@ Eigen::MatrixXd parse_covariance(const JsonContext& context, const json& value, 
                                  Eigen::Index size, const std::string& what) {
   if (value.is_array() && !value.empty() && !value[0].is_array()) {
     if (static_cast<Eigen::Index>(value.size()) != size)
-      context.fail(key, "expected a " + std::to_string(size) + "×" + std::to_string(size) + " matrix (" + what +
-                            ") or a list of its " + std::to_string(size) + " diagonal entries, got " +
+      context.fail(key, "expected a " + std::to_string(size) + "×" + std::to_string(size) + " matrix (" +
+                            what + ") or a list of its " + std::to_string(size) + " diagonal entries, got " +
                             detail::describe(value));
     const Eigen::VectorXd diagonal = detail::parse_vector(context, value, key, size, what);
     return diagonal.asDiagonal();
@@ -74,15 +74,16 @@ void check_covariance(const Eigen::MatrixXd& matrix, const std::string& file_nam
     for (Eigen::Index j = i + 1; j < matrix.cols(); ++j) {
       if (std::abs(matrix(i, j) - matrix(j, i)) > kSymmetryTolerance * scale)
         raise_input_error({file_name, 0, 0, key}, "must be symmetric, but entry " + entry(i, j) + " is " +
-                                                      shortest(matrix(i, j)) + " and entry " + entry(j, i) + " is " +
-                                                      shortest(matrix(j, i)));
+                                                      shortest(matrix(i, j)) + " and entry " + entry(j, i) +
+                                                      " is " + shortest(matrix(j, i)));
     }
   }
   // A negative variance is the commonest mistake; name it rather than the eigenvalue it causes.
   for (Eigen::Index i = 0; i < matrix.rows(); ++i)
     if (matrix(i, i) < 0)
-      raise_input_error({file_name, 0, 0, key}, "must be a covariance, but the variance at " + entry(i, i) + " is " +
-                                                    shortest(matrix(i, i)) + "; expected a value >= 0");
+      raise_input_error({file_name, 0, 0, key}, "must be a covariance, but the variance at " + entry(i, i) +
+                                                    " is " + shortest(matrix(i, i)) +
+                                                    "; expected a value >= 0");
   const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> solver(matrix, Eigen::EigenvaluesOnly);
   const Eigen::VectorXd& eigenvalues = solver.eigenvalues();
   const double largest = eigenvalues.cwiseAbs().maxCoeff();

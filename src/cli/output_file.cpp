@@ -39,9 +39,8 @@ OutputFile::OutputFile(std::string path, const std::string& input_path) : path_(
     // With "-" the log is whatever standard input reads; a regular file there is protected too
     // (`statewise filter -o log.csv < log.csv`). A terminal or pipe is not a log file.
     struct stat input {};
-    const bool input_known = input_path == "-"
-                                 ? fstat(STDIN_FILENO, &input) == 0 && S_ISREG(input.st_mode)
-                                 : stat(input_path.c_str(), &input) == 0;
+    const bool input_known = input_path == "-" ? fstat(STDIN_FILENO, &input) == 0 && S_ISREG(input.st_mode)
+                                               : stat(input_path.c_str(), &input) == 0;
     if (input_known && input.st_dev == target.st_dev && input.st_ino == target.st_ino)
       throw OutputError{path_ + ": is the input file; refusing to overwrite the log with its own estimates"};
   }

@@ -45,8 +45,9 @@ void check_nesting(std::string_view text, const std::string& file_name) {
       in_string = true;
     } else if (c == '[' || c == '{') {
       if (++depth > kMaximumNesting)
-        raise_input_error(location_of_byte(text, i, file_name),
-                          "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+        raise_input_error(
+            location_of_byte(text, i, file_name),
+            "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
     } else if ((c == ']' || c == '}') && depth > 0) {
       --depth;
     }
@@ -185,7 +186,8 @@ json parse_json_document(std::string_view text, const std::string& file_name) {
     const std::size_t close = what.rfind('\'');
     if (error.id == 406 && open != std::string::npos && close > open) {
       std::string number = what.substr(open + 1, close - open - 1);
-      if (number.size() > kMaximumNumberInMessage) number = number.substr(0, kMaximumNumberInMessage - 3) + "...";
+      if (number.size() > kMaximumNumberInMessage)
+        number = number.substr(0, kMaximumNumberInMessage - 3) + "...";
       const std::string key = path();
       raise_input_error({file_name, 0, 0, key.empty() ? std::string("top level") : key},
                         "expected a finite number, got " + number + " (beyond the range of a double)");
@@ -216,7 +218,8 @@ std::string describe(const json& value) {
     case json::value_t::array: {
       bool all_numbers = true;
       for (const auto& item : value) all_numbers = all_numbers && item.is_number();
-      const char* noun = all_numbers ? (value.size() == 1 ? " number" : " numbers") : (value.size() == 1 ? " item" : " items");
+      const char* noun = all_numbers ? (value.size() == 1 ? " number" : " numbers")
+                                     : (value.size() == 1 ? " item" : " items");
       return "a list of " + std::to_string(value.size()) + noun;
     }
     case json::value_t::object:
@@ -272,8 +275,8 @@ Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, cons
     context.fail(key, "expected a " + expected + " as a list of rows, got " + describe(value));
   // A well-formed matrix of the wrong shape is reported with both shapes.
   const std::string shape = shape_of(value);
-  if (!shape.empty() && (static_cast<Eigen::Index>(value.size()) != rows ||
-                         static_cast<Eigen::Index>(value[0].size()) != cols))
+  if (!shape.empty() &&
+      (static_cast<Eigen::Index>(value.size()) != rows || static_cast<Eigen::Index>(value[0].size()) != cols))
     context.fail(key, "expected a " + expected + ", got a " + shape + " matrix");
   if (static_cast<Eigen::Index>(value.size()) != rows)
     context.fail(key, "expected a " + expected + ", got " + std::to_string(value.size()) + " rows");
