@@ -1,6 +1,7 @@
 #include "statewise/error.h"
 
 #include <algorithm>
+#include <cctype>
 #include <numeric>
 
 namespace statewise {
@@ -52,6 +53,14 @@ std::size_t edit_distance(std::string_view a, std::string_view b) {
 }  // namespace
 
 std::string closest_match(std::string_view word, const std::vector<std::string>& candidates) {
+  // A difference in case alone is always a near miss, however short the word ("q" for "Q").
+  const auto same_ignoring_case = [word](const std::string& candidate) {
+    return std::equal(word.begin(), word.end(), candidate.begin(), candidate.end(), [](char a, char b) {
+      return std::tolower(static_cast<unsigned char>(a)) == std::tolower(static_cast<unsigned char>(b));
+    });
+  };
+  for (const auto& candidate : candidates)
+    if (same_ignoring_case(candidate)) return candidate;
   std::string best;
   std::size_t best_distance = word.size() / 3 + 1;  // more changes than this is not a near miss
   for (const auto& candidate : candidates) {

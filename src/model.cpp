@@ -1,9 +1,14 @@
 #include "statewise/model.h"
 
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <charconv>
 #include <cmath>
-#include <fstream>
 #include <set>
 #include <sstream>
+#include <system_error>
 
 #include <Eigen/Eigenvalues>
 #include <nlohmann/json.hpp>
@@ -41,26 +46,44 @@ std::vector<std::string> parse_name_list(const JsonContext& context, const json&
 Eigen::MatrixXd parse_covariance(const JsonContext& context, const json& value, const std::string& key,
                                  Eigen::Index size, const std::string& what) {
   if (value.is_array() && !value.empty() && !value[0].is_array()) {
+    if (static_cast<Eigen::Index>(value.size()) != size)
+      context.fail(key, "expected a " + std::to_string(size) + "×" + std::to_string(size) + " matrix (" +
+                            what + ") or a list of its " + std::to_string(size) + " diagonal entries, got " +
+                            detail::describe(value));
     const Eigen::VectorXd diagonal = detail::parse_vector(context, value, key, size, what);
     return diagonal.asDiagonal();
   }
   return detail::parse_matrix(context, value, key, size, size, what);
 }
 
+// The shortest text that reads back as `value`, for messages that quote the user's numbers.
+std::string shortest(double value) {
+  char buffer[32];
+  const auto result = std::to_chars(buffer, buffer + sizeof buffer, value);
+  return std::string(buffer, result.ptr);
+}
+
+std::string entry(Eigen::Index i, Eigen::Index j) {
+  return "[" + std::to_string(i) + "][" + std::to_string(j) + "]";
+}
+
 void check_covariance(const Eigen::MatrixXd& matrix, const std::string& file_name, const std::string& key) {
+  if (matrix.size() == 0) return;
   const double scale = matrix.cwiseAbs().maxCoeff();
   for (Eigen::Index i = 0; i < matrix.rows(); ++i) {
     for (Eigen::Index j = i + 1; j < matrix.cols(); ++j) {
-      if (std::abs(matrix(i, j) - matrix(j, i)) > kSymmetryTolerance * scale) {
-        std::ostringstream message;
-        message.precision(17);
-        message << "must be symmetric, but entry [" << i << "][" << j << "] is " << matrix(i, j) << " and entry ["
-                << j << "][" << i << "] is " << matrix(j, i);
-        raise_input_error({file_name, 0, 0, key}, message.str());
-      }
+      if (std::abs(matrix(i, j) - matrix(j, i)) > kSymmetryTolerance * scale)
+        raise_input_error({file_name, 0, 0, key}, "must be symmetric, but entry " + entry(i, j) + " is " +
+                                                      shortest(matrix(i, j)) + " and entry " + entry(j, i) +
+                                                      " is " + shortest(matrix(j, i)));
     }
   }
-  if (matrix.size() == 0) return;
+  // A negative variance is the commonest mistake; name it rather than the eigenvalue it causes.
+  for (Eigen::Index i = 0; i < matrix.rows(); ++i)
+    if (matrix(i, i) < 0)
+      raise_input_error({file_name, 0, 0, key}, "must be a covariance, but the variance at " + entry(i, i) +
+                                                    " is " + shortest(matrix(i, i)) +
+                                                    "; expected a value >= 0");
   const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> solver(matrix, Eigen::EigenvaluesOnly);
   const Eigen::VectorXd& eigenvalues = solver.eigenvalues();
   const double largest = eigenvalues.cwiseAbs().maxCoeff();
@@ -69,7 +92,6 @@ void check_covariance(const Eigen::MatrixXd& matrix, const std::string& file_nam
     message.precision(6);
     message << "must be a covariance (positive semidefinite), but it has the negative eigenvalue "
             << eigenvalues.minCoeff();
-    if (matrix.rows() > 0 && matrix.diagonal().minCoeff() < 0) message << " (a negative variance on the diagonal)";
     raise_input_error({file_name, 0, 0, key}, message.str());
   }
 }
@@ -122,9 +144,10 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
   check_covariance(model.initial_covariance, file_name, "initial.covariance");
   std::set<std::string> columns;
   for (const auto& name : model.observation_names) columns.insert(name);
-  for (const auto& name : model.input_names)
-    if (!columns.insert(name).second)
-      raise_input_error({file_name, 0, 0, "inputs"}, "the column \"" + name + "\" is both observed and an input");
+  for (std::size_t i = 0; i < model.input_names.size(); ++i)
+    if (!columns.insert(model.input_names[i]).second)
+      raise_input_error({file_name, 0, 0, "inputs[" + std::to_string(i) + "]"},
+                        "the column \"" + model.input_names[i] + "\" is both observed and an input");
   if (!model.time_column.empty() && columns.count(model.time_column))
     raise_input_error({file_name, 0, 0, "time.column"},
                       "the column \"" + model.time_column + "\" is also a channel or an input");
@@ -202,12 +225,27 @@ StateSpaceModel parse_model(std::string_view json_text, const std::string& file_
 }
 
 StateSpaceModel load_model(const std::string& path) {
-  std::ifstream file(path, std::ios::binary);
-  if (!file) raise_input_error({path, 0, 0, ""}, "cannot open the model file");
-  std::ostringstream text;
-  text << file.rdbuf();
-  if (file.bad()) raise_input_error({path, 0, 0, ""}, "cannot read the model file");
-  return parse_model(text.str(), path);
+  // POSIX reads, as in the CSV reader, so that the system's reason ("Is a directory") is reported.
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0)
+    raise_input_error({path, 0, 0, ""},
+                      "cannot open the model file (" + std::system_category().message(errno) + ")");
+  std::string text;
+  char chunk[1 << 16];
+  for (;;) {
+    const ssize_t count = ::read(fd, chunk, sizeof chunk);
+    if (count < 0 && errno == EINTR) continue;
+    if (count < 0) {
+      const int error = errno;
+      ::close(fd);
+      raise_input_error({path, 0, 0, ""},
+                        "cannot read the model file (" + std::system_category().message(error) + ")");
+    }
+    if (count == 0) break;
+    text.append(chunk, static_cast<std::size_t>(count));
+  }
+  ::close(fd);
+  return parse_model(text, path);
 }
 
 std::string write_model(const StateSpaceModel& model) {

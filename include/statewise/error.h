@@ -44,7 +44,8 @@ std::string format_location(const SourceLocation& location);
 [[noreturn]] void raise_input_error(const SourceLocation& location, std::string_view message);
 
 /// The candidate closest to `word` by edit distance, for "did you mean" hints; empty when none is
-/// close enough (more than a third of the word's letters would have to change).
+/// close enough (more than a third of the word's letters would have to change). A candidate that
+/// differs from `word` in case only is always close enough.
 std::string closest_match(std::string_view word, const std::vector<std::string>& candidates);
 
 /// `; did you mean "x"?` when a close candidate exists, else an empty string.

@@ -35,9 +35,13 @@ OutputFile::OutputFile(std::string path, const std::string& input_path) : path_(
   }
   struct stat target {};
   const bool exists = stat(path_.c_str(), &target) == 0;
-  if (exists && !input_path.empty() && input_path != "-") {
+  if (exists && !input_path.empty()) {
+    // With "-" the log is whatever standard input reads; a regular file there is protected too
+    // (`statewise filter -o log.csv < log.csv`). A terminal or pipe is not a log file.
     struct stat input {};
-    if (stat(input_path.c_str(), &input) == 0 && input.st_dev == target.st_dev && input.st_ino == target.st_ino)
+    const bool input_known = input_path == "-" ? fstat(STDIN_FILENO, &input) == 0 && S_ISREG(input.st_mode)
+                                               : stat(input_path.c_str(), &input) == 0;
+    if (input_known && input.st_dev == target.st_dev && input.st_ino == target.st_ino)
       throw OutputError{path_ + ": is the input file; refusing to overwrite the log with its own estimates"};
   }
   if (exists && !S_ISREG(target.st_mode)) {

@@ -16,8 +16,9 @@ struct OutputError {
 
 class OutputFile {
  public:
-  /// Opens `path` ("-" = standard output) for writing. `input_path` (may be empty or "-") is refused
-  /// as a target so that a log is never overwritten by its own estimates.
+  /// Opens `path` ("-" = standard output) for writing. `input_path` (may be empty; "-" stands for the
+  /// regular file standard input reads, if any) is refused as a target so that a log is never
+  /// overwritten by its own estimates.
   OutputFile(std::string path, const std::string& input_path = "");
   OutputFile(const OutputFile&) = delete;
   OutputFile& operator=(const OutputFile&) = delete;

@@ -11,6 +11,7 @@ using nlohmann::json;
 
 namespace {
 constexpr int kMaximumNesting = 64;
+constexpr std::size_t kMaximumNumberInMessage = 40;  // longer number texts are shortened in messages
 
 // 1-based line and column of a byte offset in the text.
 SourceLocation location_of_byte(std::string_view text, std::size_t byte, const std::string& file_name) {
@@ -25,6 +26,32 @@ SourceLocation location_of_byte(std::string_view text, std::size_t byte, const s
     }
   }
   return location;
+}
+
+// Raises InputError at the bracket that opens level kMaximumNesting + 1 (the top-level value is
+// level 1). Scanned before parsing so that the message can give the line and column.
+void check_nesting(std::string_view text, const std::string& file_name) {
+  int depth = 0;
+  bool in_string = false;
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char c = text[i];
+    if (in_string) {
+      if (c == '\\') {
+        ++i;  // the escaped character cannot end the string
+      } else if (c == '"') {
+        in_string = false;
+      }
+    } else if (c == '"') {
+      in_string = true;
+    } else if (c == '[' || c == '{') {
+      if (++depth > kMaximumNesting)
+        raise_input_error(
+            location_of_byte(text, i, file_name),
+            "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+    } else if ((c == ']' || c == '}') && depth > 0) {
+      --depth;
+    }
+  }
 }
 
 bool is_scalar_list(const OrderedJson& value) {
@@ -52,16 +79,16 @@ void dump_into(const OrderedJson& value, int indent, std::string& out) {
     }
     out += "\n" + pad + "}";
   } else if (is_scalar_list(value)) {
-    out += value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
-    // nlohmann writes "[1,2]"; add a space after each comma for readability.
-    std::string spaced;
-    const std::size_t start = out.rfind('[');
-    for (std::size_t i = start; i < out.size(); ++i) {
-      spaced += out[i];
-      if (out[i] == ',') spaced += ' ';
+    // One line, a space after each separating comma: "[1, 2]". Items are written one by one so that
+    // commas and brackets inside text items are left alone.
+    out += '[';
+    bool first = true;
+    for (const auto& item : value) {
+      if (!first) out += ", ";
+      first = false;
+      out += item.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
     }
-    out.resize(start);
-    out += spaced;
+    out += ']';
   } else if (value.is_array()) {
     if (value.empty()) {
       out += "[]";
@@ -89,26 +116,54 @@ void JsonContext::fail(const std::string& key, const std::string& message) const
 json parse_json_document(std::string_view text, const std::string& file_name) {
   if (text.find_first_not_of(" \t\r\n") == std::string_view::npos)
     raise_input_error({file_name, 0, 0, ""}, "the file is empty; expected a JSON object");
-  std::vector<std::set<std::string>> keys_per_level;
-  std::vector<std::string> path;
-  auto callback = [&](int depth, json::parse_event_t event, json& parsed) {
-    if (depth > kMaximumNesting)
-      raise_input_error({file_name, 0, 0, ""},
-                        "nested more than " + std::to_string(kMaximumNesting) + " levels deep; expected a model file");
+  check_nesting(text, file_name);
+  // The containers being parsed, outermost first, to name the key path of a duplicate key or of a
+  // number out of range (nlohmann reports neither with a position).
+  struct Frame {
+    bool object = false;
+    std::string key;        // object: the key whose value is being parsed
+    std::size_t index = 0;  // array: the index of the item being parsed
+    std::set<std::string> keys;
+  };
+  std::vector<Frame> frames;
+  const auto path = [&frames]() {
+    std::string joined;
+    for (const Frame& frame : frames) {
+      if (!frame.object) {
+        joined += "[" + std::to_string(frame.index) + "]";
+      } else if (!frame.key.empty()) {
+        if (!joined.empty()) joined += ".";
+        joined += frame.key;
+      }
+    }
+    return joined;
+  };
+  const auto item_done = [&frames]() {
+    if (!frames.empty() && !frames.back().object) ++frames.back().index;
+  };
+  auto callback = [&](int /*depth*/, json::parse_event_t event, json& parsed) {
     switch (event) {
       case json::parse_event_t::object_start:
-        keys_per_level.emplace_back();
+        frames.push_back(Frame{true, {}, 0, {}});
+        break;
+      case json::parse_event_t::array_start:
+        frames.push_back(Frame{false, {}, 0, {}});
         break;
       case json::parse_event_t::object_end:
-        if (!keys_per_level.empty()) keys_per_level.pop_back();
+      case json::parse_event_t::array_end:
+        if (!frames.empty()) frames.pop_back();
+        item_done();
         break;
       case json::parse_event_t::key: {
-        const std::string key = parsed.get<std::string>();
-        if (!keys_per_level.empty() && !keys_per_level.back().insert(key).second)
-          raise_input_error({file_name, 0, 0, key}, "the key appears twice in the same object; keep one");
+        if (frames.empty()) break;
+        Frame& frame = frames.back();
+        frame.key = parsed.get<std::string>();
+        if (!frame.keys.insert(frame.key).second)
+          raise_input_error({file_name, 0, 0, path()}, "the key appears twice in the same object; keep one");
         break;
       }
-      default:
+      case json::parse_event_t::value:
+        item_done();
         break;
     }
     return true;
@@ -123,6 +178,23 @@ json parse_json_document(std::string_view text, const std::string& file_name) {
     const SourceLocation location =
         location_of_byte(text, error.byte > 0 ? error.byte - 1 : 0, file_name);
     raise_input_error(location, "invalid JSON: " + detail_text);
+  } catch (const json::out_of_range& error) {
+    // Error 406, "number overflow parsing '1e999'": a number beyond the range of a double. It is
+    // reported like any other non-finite entry, at the key path of the number.
+    std::string what = error.what();
+    const std::size_t open = what.find('\'');
+    const std::size_t close = what.rfind('\'');
+    if (error.id == 406 && open != std::string::npos && close > open) {
+      std::string number = what.substr(open + 1, close - open - 1);
+      if (number.size() > kMaximumNumberInMessage)
+        number = number.substr(0, kMaximumNumberInMessage - 3) + "...";
+      const std::string key = path();
+      raise_input_error({file_name, 0, 0, key.empty() ? std::string("top level") : key},
+                        "expected a finite number, got " + number + " (beyond the range of a double)");
+    }
+    const std::size_t bracket = what.find("] ");
+    raise_input_error({file_name, 0, 0, ""},
+                      "invalid JSON: " + (bracket == std::string::npos ? what : what.substr(bracket + 2)));
   } catch (const json::exception& error) {
     std::string what = error.what();
     const std::size_t bracket = what.find("] ");
@@ -143,8 +215,13 @@ std::string describe(const json& value) {
     case json::value_t::number_unsigned:
     case json::value_t::number_float:
       return "the number " + value.dump();
-    case json::value_t::array:
-      return "a list of " + std::to_string(value.size()) + (value.size() == 1 ? " item" : " items");
+    case json::value_t::array: {
+      bool all_numbers = true;
+      for (const auto& item : value) all_numbers = all_numbers && item.is_number();
+      const char* noun = all_numbers ? (value.size() == 1 ? " number" : " numbers")
+                                     : (value.size() == 1 ? " item" : " items");
+      return "a list of " + std::to_string(value.size()) + noun;
+    }
     case json::value_t::object:
       return "an object";
     default:
@@ -177,6 +254,16 @@ double parse_number(const JsonContext& context, const json& value, const std::st
   return number;
 }
 
+namespace {
+// "2×3" when `value` is a list of equally long lists (a matrix of some shape), else empty.
+std::string shape_of(const json& value) {
+  if (!value.is_array() || value.empty()) return "";
+  for (const auto& row : value)
+    if (!row.is_array() || row.size() != value[0].size()) return "";
+  return std::to_string(value.size()) + "×" + std::to_string(value[0].size());
+}
+}  // namespace
+
 Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index rows, Eigen::Index cols, const std::string& what) {
   const std::string expected = std::to_string(rows) + "×" + std::to_string(cols) + " matrix (" + what + ")";
@@ -184,8 +271,13 @@ Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, cons
     if (rows != 1 || cols != 1) context.fail(key, "expected a " + expected + ", got a single number");
     return Eigen::MatrixXd::Constant(1, 1, parse_number(context, value, key));
   }
-  if (!value.is_array())
+  if (!value.is_array() || (!value.empty() && !value[0].is_array()))
     context.fail(key, "expected a " + expected + " as a list of rows, got " + describe(value));
+  // A well-formed matrix of the wrong shape is reported with both shapes.
+  const std::string shape = shape_of(value);
+  if (!shape.empty() &&
+      (static_cast<Eigen::Index>(value.size()) != rows || static_cast<Eigen::Index>(value[0].size()) != cols))
+    context.fail(key, "expected a " + expected + ", got a " + shape + " matrix");
   if (static_cast<Eigen::Index>(value.size()) != rows)
     context.fail(key, "expected a " + expected + ", got " + std::to_string(value.size()) + " rows");
   Eigen::MatrixXd matrix(rows, cols);

@@ -20,8 +20,9 @@ struct JsonContext {
   [[noreturn]] void fail(const std::string& key, const std::string& message) const;
 };
 
-/// Parses a JSON document; syntax errors, duplicate keys and nesting deeper than 64 levels raise
-/// InputError with file:line:column (or the key path for duplicates).
+/// Parses a JSON document. Syntax errors and nesting deeper than 64 levels (the top-level value is
+/// level 1) raise InputError with file:line:column; a duplicate key and a number beyond the range of
+/// a double (1e999) raise it with the key path.
 nlohmann::json parse_json_document(std::string_view text, const std::string& file_name);
 
 /// A short description of a JSON value for messages: `the text "abc"`, `the number 3`, `a list of 2 items`.
