@@ -52,16 +52,24 @@ void dump_into(const OrderedJson& value, int indent, std::string& out) {
     }
     out += "\n" + pad + "}";
   } else if (is_scalar_list(value)) {
-    out += value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
-    // nlohmann writes "[1,2]"; add a space after each comma for readability.
-    std::string spaced;
-    const std::size_t start = out.rfind('[');
-    for (std::size_t i = start; i < out.size(); ++i) {
-      spaced += out[i];
-      if (out[i] == ',') spaced += ' ';
+    // nlohmann writes "[1,2]"; add a space after each comma between items (not inside strings).
+    const std::string compact = value.dump(-1, ' ', false, OrderedJson::error_handler_t::replace);
+    bool in_string = false, escaped = false;
+    for (const char c : compact) {
+      out += c;
+      if (in_string) {
+        if (escaped)
+          escaped = false;
+        else if (c == '\\')
+          escaped = true;
+        else if (c == '"')
+          in_string = false;
+      } else if (c == '"') {
+        in_string = true;
+      } else if (c == ',') {
+        out += ' ';
+      }
     }
-    out.resize(start);
-    out += spaced;
   } else if (value.is_array()) {
     if (value.empty()) {
       out += "[]";
