@@ -22,6 +22,9 @@ struct EstimateOptions {
   std::string delimiter = ",";             // --delimiter (input)
   std::vector<std::string> missing_tokens;  // --missing, repeatable
   int digits = 0;                          // --digits; 0 = shortest round trip
+  bool sort = false;                       // --sort: sort rows by time first
+  std::string duplicates = "error";        // --duplicates error|first|last|mean
+  double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
 };
 
 /// `statewise filter`: streams rows through the Kalman filter.

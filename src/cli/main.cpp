@@ -33,6 +33,16 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
   command.add_option("--digits", options.digits, "Significant digits of output numbers; 0 = shortest exact")
       ->capture_default_str()
       ->check(CLI::Range(0, 17));
+  command.add_flag("--sort", options.sort, "Sort the rows by time before estimating (reads the whole log first)");
+  command.add_option("--duplicates", options.duplicates,
+                     "Rows with the same time: error, or merge them per channel: first, last or mean")
+      ->capture_default_str();
+}
+
+void add_regular_option(CLI::App& command, EstimateOptions& options) {
+  command.add_option("--regular", options.regular_step,
+                     "Output a complete timeline on a grid of STEP seconds from the first row, inserting rows "
+                     "(every channel imputed) where the log has none");
 }
 
 int report_error(const std::string& message, int code) {
@@ -52,8 +62,10 @@ int main(int argc, char** argv) {
   EstimateOptions filter_options, smooth_options;
   CLI::App* filter = app.add_subcommand("filter", "Run the Kalman filter over a log, row by row");
   add_estimate_options(*filter, filter_options);
+  add_regular_option(*filter, filter_options);
   CLI::App* smooth = app.add_subcommand("smooth", "Estimate every row from the whole log (RTS smoother)");
   add_estimate_options(*smooth, smooth_options);
+  add_regular_option(*smooth, smooth_options);
 
   try {
     app.parse(argc, argv);
