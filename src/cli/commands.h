@@ -27,10 +27,20 @@ struct EstimateOptions {
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
 };
 
+/// Options of `statewise discretize`.
+struct DiscretizeOptions {
+  std::string model_path;         // -m/--model
+  double dt = 0.0;                // --dt, seconds
+  std::string output_path = "-";  // -o/--output
+};
+
 /// `statewise filter`: streams rows through the Kalman filter.
 int run_filter(const EstimateOptions& options);
 /// `statewise smooth`: filters the whole log, then runs the RTS smoother backwards.
 int run_smooth(const EstimateOptions& options);
+
+/// `statewise discretize`: writes the equivalent discrete model file for a step of --dt seconds.
+int run_discretize(const DiscretizeOptions& options);
 
 /// The delimiter option as one character: "," ";" "|" "\t" or "tab".
 char parse_delimiter(const std::string& text);

@@ -33,16 +33,19 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
   command.add_option("--digits", options.digits, "Significant digits of output numbers; 0 = shortest exact")
       ->capture_default_str()
       ->check(CLI::Range(0, 17));
-  command.add_flag("--sort", options.sort, "Sort the rows by time before estimating (reads the whole log first)");
-  command.add_option("--duplicates", options.duplicates,
-                     "Rows with the same time: error, or merge them per channel: first, last or mean")
+  command.add_flag("--sort", options.sort,
+                   "Sort the rows by time before estimating (reads the whole log first)");
+  command
+      .add_option("--duplicates", options.duplicates,
+                  "Rows with the same time: error, or merge them per channel: first, last or mean")
       ->capture_default_str();
 }
 
 void add_regular_option(CLI::App& command, EstimateOptions& options) {
-  command.add_option("--regular", options.regular_step,
-                     "Output a complete timeline on a grid of STEP seconds from the first row, inserting rows "
-                     "(every channel imputed) where the log has none");
+  command.add_option(
+      "--regular", options.regular_step,
+      "Output a complete timeline on a grid of STEP seconds from the first row, inserting rows "
+      "(every channel imputed) where the log has none");
 }
 
 int report_error(const std::string& message, int code) {
@@ -67,6 +70,15 @@ int main(int argc, char** argv) {
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
 
+  DiscretizeOptions discretize_options;
+  CLI::App* discretize =
+      app.add_subcommand("discretize", "Print the discrete model equivalent to a model over a step of --dt seconds");
+  discretize->add_option("-m,--model", discretize_options.model_path, "Model file: continuous, or discrete with a step")
+      ->required();
+  discretize->add_option("--dt", discretize_options.dt, "The step in seconds")->required();
+  discretize->add_option("-o,--output", discretize_options.output_path, "Where to write the model; - for standard output")
+      ->capture_default_str();
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -82,6 +94,7 @@ int main(int argc, char** argv) {
   try {
     if (filter->parsed()) return run_filter(filter_options);
     if (smooth->parsed()) return run_smooth(smooth_options);
+    if (discretize->parsed()) return run_discretize(discretize_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
   } catch (const NumericalFailure& e) {
