@@ -3,6 +3,7 @@
 // (cli/exit_codes.h); bad input surfaces as statewise::InputError, output trouble as OutputError,
 // numerical trouble as NumericalFailure, all mapped to exit codes in main.cpp.
 
+#include <cstdint>
 #include <string>
 #include <vector>
 
@@ -27,6 +28,14 @@ struct EstimateOptions {
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
 };
 
+/// Options of `statewise forecast`: a log's options plus what to forecast.
+struct ForecastOptions : EstimateOptions {
+  long long horizon = 0;  // --horizon ROWS; 0 = not given
+  std::string until;      // --until TIME; empty = not given
+  double step = 0.0;      // --step SECONDS; 0 = the default
+  double level = 0.95;    // --level, coverage of the prediction interval
+};
+
 /// Options of `statewise discretize`.
 struct DiscretizeOptions {
   std::string model_path;         // -m/--model
@@ -39,6 +48,8 @@ int run_filter(const EstimateOptions& options);
 /// `statewise smooth`: filters the whole log, then runs the RTS smoother backwards.
 int run_smooth(const EstimateOptions& options);
 
+/// `statewise forecast`: filters a log, then writes predicted rows past its end.
+int run_forecast(const ForecastOptions& options);
 /// `statewise discretize`: writes the equivalent discrete model file for a step of --dt seconds.
 int run_discretize(const DiscretizeOptions& options);
 

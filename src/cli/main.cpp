@@ -70,13 +70,30 @@ int main(int argc, char** argv) {
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
 
+  ForecastOptions forecast_options;
+  CLI::App* forecast = app.add_subcommand(
+      "forecast", "Filter a log, then predict rows past its end with intervals for new measurements");
+  add_estimate_options(*forecast, forecast_options);
+  CLI::Option* horizon =
+      forecast->add_option("--horizon", forecast_options.horizon, "Number of future rows to predict");
+  forecast->add_option("--until", forecast_options.until, "Predict up to this time (in the log's time form)")
+      ->excludes(horizon);
+  forecast->add_option("--step", forecast_options.step,
+                       "Seconds between future rows (default: the model's step, or the log's median gap)");
+  forecast->add_option("--level", forecast_options.level, "Coverage of the prediction intervals c_lo..c_hi")
+      ->capture_default_str();
+
   DiscretizeOptions discretize_options;
-  CLI::App* discretize =
-      app.add_subcommand("discretize", "Print the discrete model equivalent to a model over a step of --dt seconds");
-  discretize->add_option("-m,--model", discretize_options.model_path, "Model file: continuous, or discrete with a step")
+  CLI::App* discretize = app.add_subcommand(
+      "discretize", "Print the discrete model equivalent to a model over a step of --dt seconds");
+  discretize
+      ->add_option("-m,--model", discretize_options.model_path,
+                   "Model file: continuous, or discrete with a step")
       ->required();
   discretize->add_option("--dt", discretize_options.dt, "The step in seconds")->required();
-  discretize->add_option("-o,--output", discretize_options.output_path, "Where to write the model; - for standard output")
+  discretize
+      ->add_option("-o,--output", discretize_options.output_path,
+                   "Where to write the model; - for standard output")
       ->capture_default_str();
 
   try {
@@ -94,6 +111,7 @@ int main(int argc, char** argv) {
   try {
     if (filter->parsed()) return run_filter(filter_options);
     if (smooth->parsed()) return run_smooth(smooth_options);
+    if (forecast->parsed()) return run_forecast(forecast_options);
     if (discretize->parsed()) return run_discretize(discretize_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
