@@ -36,6 +36,18 @@ struct ForecastOptions : EstimateOptions {
   double level = 0.95;    // --level, coverage of the prediction interval
 };
 
+/// Options of `statewise check`.
+struct CheckOptions {
+  std::string model_path;                   // -m/--model
+  std::string input_path;                   // positional, optional; empty = no log
+  std::string report_path;                  // --report; empty = none
+  std::string delimiter = ",";              // --delimiter (input)
+  std::vector<std::string> missing_tokens;  // --missing, repeatable
+  bool sort = false;                        // --sort
+  std::string duplicates = "error";         // --duplicates
+  double dt = 0.0;                          // --dt: a continuous model's row spacing for the steady state
+};
+
 /// Options of `statewise discretize`.
 struct DiscretizeOptions {
   std::string model_path;         // -m/--model
@@ -50,6 +62,8 @@ int run_smooth(const EstimateOptions& options);
 
 /// `statewise forecast`: filters a log, then writes predicted rows past its end.
 int run_forecast(const ForecastOptions& options);
+/// `statewise check`: prints a structural report; kExitModelCannotWork when the model cannot work.
+int run_check(const CheckOptions& options);
 /// `statewise discretize`: writes the equivalent discrete model file for a step of --dt seconds.
 int run_discretize(const DiscretizeOptions& options);
 

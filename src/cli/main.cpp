@@ -83,6 +83,34 @@ int main(int argc, char** argv) {
   forecast->add_option("--level", forecast_options.level, "Coverage of the prediction intervals c_lo..c_hi")
       ->capture_default_str();
 
+  CheckOptions check_options;
+  CLI::App* check = app.add_subcommand(
+      "check",
+      "Report whether a model can work: observability, noise reach, stability, steady state; with a log, "
+      "missing values and gaps (exit status 3 when it cannot work)");
+  check->add_option("-m,--model", check_options.model_path, "Model file (JSON, docs/model-format.md)")
+      ->required();
+  check->add_option("input", check_options.input_path,
+                    "Optional log to report missing values and gaps of; - for "
+                    "standard input");
+  check->add_option("--report", check_options.report_path, "Also write the report as JSON to this file");
+  check
+      ->add_option("--delimiter", check_options.delimiter,
+                   "Field separator of the log: one character, or tab")
+      ->capture_default_str();
+  check
+      ->add_option("--missing", check_options.missing_tokens,
+                   "Extra cell text meaning 'no value' (repeatable)")
+      ->allow_extra_args(false);
+  check->add_flag("--sort", check_options.sort, "Sort the log's rows by time first");
+  check
+      ->add_option("--duplicates", check_options.duplicates,
+                   "Rows with the same time: error, or merge them per channel: first, last or mean")
+      ->capture_default_str();
+  check->add_option(
+      "--dt", check_options.dt,
+      "Continuous models: seconds between rows for the steady state (default: the log's median gap)");
+
   DiscretizeOptions discretize_options;
   CLI::App* discretize = app.add_subcommand(
       "discretize", "Print the discrete model equivalent to a model over a step of --dt seconds");
@@ -112,6 +140,7 @@ int main(int argc, char** argv) {
     if (filter->parsed()) return run_filter(filter_options);
     if (smooth->parsed()) return run_smooth(smooth_options);
     if (forecast->parsed()) return run_forecast(forecast_options);
+    if (check->parsed()) return run_check(check_options);
     if (discretize->parsed()) return run_discretize(discretize_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
