@@ -45,16 +45,18 @@ TimelineOptions timeline_options(const EstimateOptions& options) {
 }
 
 [[noreturn]] void fail_step(StepStatus status, const std::string& place) {
-  throw NumericalFailure{place + ": " + describe(status) +
-                         "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
+  throw NumericalFailure{
+      place + ": " + describe(status) +
+      "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
 }
 
 void add_timeline_warnings(RunReport& report, const Timeline& timeline, const SpacingWatch& spacing,
                            const EstimateOptions& options) {
   if (timeline.inserted_rows() > 0)
-    report.warnings.push_back(std::to_string(timeline.inserted_rows()) +
-                              " rows were inserted on the --regular grid where the log had none; every channel "
-                              "is imputed there");
+    report.warnings.push_back(
+        std::to_string(timeline.inserted_rows()) +
+        " rows were inserted on the --regular grid where the log had none; every channel "
+        "is imputed there");
   if (timeline.merged_rows() > 0)
     report.warnings.push_back(std::to_string(timeline.merged_rows()) +
                               " rows repeated an earlier row's time and were merged into it (--duplicates " +
@@ -94,7 +96,8 @@ void finish_report(RunReport& report, const InnovationAccumulator& accumulator, 
 int run_filter(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);
   check_sort_flag(model, options.sort);
-  Timeline timeline(model, timeline_options(options), options.input_path == "-" ? "<stdin>" : options.input_path);
+  Timeline timeline(model, timeline_options(options),
+                    options.input_path == "-" ? "<stdin>" : options.input_path);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
@@ -110,12 +113,15 @@ int run_filter(const EstimateOptions& options) {
   std::vector<double> previous_inputs;
   bool first = true;
   read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
-    if (!first) filter.predict(transitions.transition(row.gap), previous_inputs.empty() ? nullptr : previous_inputs.data());
+    if (!first)
+      filter.predict(transitions.transition(row.gap),
+                     previous_inputs.empty() ? nullptr : previous_inputs.data());
     const StepStatus status = filter.update(row.row.values.data(), record);
     if (status != StepStatus::ok) fail_step(status, row_place(reader.display_name(), row));
     accumulator.add(record);
     spacing.add(row);
-    writer.append_row(buffer, row.row.time_text, row.row.values.data(), filter.mean(), filter.covariance(), &record);
+    writer.append_row(buffer, row.row.time_text, row.row.values.data(), filter.mean(), filter.covariance(),
+                      &record);
     if (output.interactive()) {
       output.write_buffer(buffer);
       output.flush();
@@ -136,7 +142,8 @@ int run_filter(const EstimateOptions& options) {
 int run_smooth(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);
   check_sort_flag(model, options.sort);
-  Timeline timeline(model, timeline_options(options), options.input_path == "-" ? "<stdin>" : options.input_path);
+  Timeline timeline(model, timeline_options(options),
+                    options.input_path == "-" ? "<stdin>" : options.input_path);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
@@ -177,8 +184,8 @@ int run_smooth(const EstimateOptions& options) {
   // Backward pass, in place.
   const SmoothStatus smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
   if (!smoothed.ok)
-    throw NumericalFailure{row_place(file, series.lines[smoothed.row], series.time_text(smoothed.row)) + ": " +
-                           smoothed.message};
+    throw NumericalFailure{row_place(file, series.lines[smoothed.row], series.time_text(smoothed.row)) +
+                           ": " + smoothed.message};
 
   const EstimateTableWriter writer(model, EstimateKind::smoothed, TableFormat{',', options.digits});
   std::string buffer;
