@@ -21,7 +21,7 @@ using detail::JsonContext;
 
 const std::vector<std::string> kTopLevelKeys = {"version", "description", "states", "observations", "inputs",
                                                 "A",       "B",           "C",      "Q",            "R",
-                                                "initial", "time",        "domain",      "step"};
+                                                "initial", "time",        "domain", "step"};
 const std::vector<std::string> kDomainNames = {"discrete", "continuous"};
 
 std::vector<std::string> parse_name_list(const JsonContext& context, const json& value, const std::string& key) {
@@ -138,7 +138,8 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
     raise_input_error({file_name, 0, 0, "time.column"},
                       "the column \"" + model.time_column + "\" is also a channel or an input");
   if (!(model.step >= 0.0) || !std::isfinite(model.step))
-    raise_input_error({file_name, 0, 0, "step"}, "expected a positive number of seconds, got " + number_text(model.step));
+    raise_input_error({file_name, 0, 0, "step"},
+                      "expected a positive number of seconds, got " + number_text(model.step));
   if (model.domain == TimeDomain::continuous) {
     if (model.step > 0.0)
       raise_input_error({file_name, 0, 0, "step"},
@@ -155,7 +156,9 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
   }
 }
 
-const char* domain_name(TimeDomain domain) { return domain == TimeDomain::continuous ? "continuous" : "discrete"; }
+const char* domain_name(TimeDomain domain) {
+  return domain == TimeDomain::continuous ? "continuous" : "discrete";
+}
 
 StateSpaceModel parse_model(std::string_view json_text, const std::string& file_name) {
   const json root = detail::parse_json_document(json_text, file_name);
