@@ -400,6 +400,7 @@ StructureReport analyze_structure(const StateSpaceModel& model, double dt) {
     report.warnings.push_back("the steady state was not computed: " + report.riccati.message);
 
   const RankTest& seen = report.observability;
+  const std::string drift = model.domain == TimeDomain::continuous ? "F" : "A";
   const bool observable = seen.rank == seen.states;
   if (!report.detectable) {
     const bool several = seen.directions.size() > 1;
@@ -407,8 +408,8 @@ StructureReport analyze_structure(const StateSpaceModel& model, double dt) {
     report.verdict = std::string("The model cannot work: the ") + (several ? "directions " : "direction ") +
                      directions_text(seen) + " cannot be seen from the channels and " +
                      (several ? "do" : "does") + " not decay on " + (several ? "their" : "its") +
-                     " own (eigenvalue" + (seen.modes.size() > 1 ? "s " : " ") + modes_text(seen) +
-                     " of A there), so " + (several ? "their" : "its") + " uncertainty never shrinks.";
+                     " own (eigenvalue" + (seen.modes.size() > 1 ? "s " : " ") + modes_text(seen) + " of " +
+                     drift + " there), so " + (several ? "their" : "its") + " uncertainty never shrinks.";
   } else if (report.riccati.status == RiccatiStatus::no_solution) {
     report.can_work = false;
     report.verdict = "The model cannot work: the Riccati equation has no stabilizing solution (" +

@@ -48,7 +48,7 @@ TEST_CASE("check: a falling body seen by its height can work, seen by its speed 
                  "  eigenvalues of F there: 0 (on the stability boundary; not detectable)\n"));
   CHECK(contains(speed.out,
                  "Verdict: The model cannot work: the direction \"position\" cannot be seen from the "
-                 "channels and does not decay on its own (eigenvalue 0 of A there), so its uncertainty "
+                 "channels and does not decay on its own (eigenvalue 0 of F there), so its uncertainty "
                  "never shrinks.\n"));
   const nlohmann::json report = nlohmann::json::parse(folder.read("report.json"));
   CHECK(report["can_work"] == false);

@@ -78,6 +78,15 @@ TEST_CASE("rows inserted by --regular leave the smoothed estimates at the log's 
   CHECK(
       folder.read("r.json").find("\"6 rows were inserted on the --regular grid where the log had none; every "
                                  "channel is imputed there\"") != std::string::npos);
+  // The same holds for the filtered moments, which condition on the rows up to each row only.
+  const CommandResult filtered = run_statewise(folder, "filter -m model.json log.csv");
+  const CommandResult filtered_regular = run_statewise(folder, "filter -m model.json --regular 1 log.csv");
+  REQUIRE(filtered_regular.status == 0);
+  const Table c = parse_table(filtered.out), d = parse_table(filtered_regular.out);
+  REQUIRE(d.rows.size() == 11);
+  for (const char* column : {"position", "position_sd", "velocity", "velocity_sd"})
+    CHECK(column_difference(c, {0, 1, 2, 3, 4}, d, log_rows, column) < 1e-12);
+  CHECK(d.text(2, "height_innov").empty());
 }
 
 TEST_CASE("a gap of k steps in a discrete model equals k steps through empty rows") {
