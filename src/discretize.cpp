@@ -156,8 +156,14 @@ std::int64_t TransitionCache::key_of(const Gap& gap) const {
 
 std::uint32_t TransitionCache::index(const Gap& gap) {
   const std::int64_t key = key_of(gap);
+  if (has_last_ && key == last_key_) return last_index_;
   const auto found = index_of_key_.find(key);
-  if (found != index_of_key_.end()) return found->second;
+  if (found != index_of_key_.end()) {
+    has_last_ = true;
+    last_key_ = key;
+    last_index_ = found->second;
+    return found->second;
+  }
   if (capacity_ > 0 && transitions_.size() >= capacity_) {
     transitions_.clear();
     index_of_key_.clear();
@@ -169,11 +175,15 @@ std::uint32_t TransitionCache::index(const Gap& gap) {
   ++discretizations_;
   const auto index = static_cast<std::uint32_t>(transitions_.size() - 1);
   index_of_key_.emplace(key, index);
+  has_last_ = true;
+  last_key_ = key;
+  last_index_ = index;
   return index;
 }
 
 std::vector<Transition> TransitionCache::take_transitions() {
   index_of_key_.clear();
+  has_last_ = false;
   std::vector<Transition> taken = std::move(transitions_);
   transitions_.clear();
   return taken;

@@ -531,7 +531,7 @@ void Timeline::push(const ObservationRow& row) {
   }
   any_pushed_ = true;
   pushed_time_ = parsed.time;
-  pushed_text_ = std::string(trim(row.time_text));
+  pushed_text_.assign(trim(row.time_text));  // reuses the buffer: no allocation per row
   pushed_line_ = row.line;
   if (options_.duplicates == DuplicatePolicy::error) {
     hold(row, parsed, ready_);

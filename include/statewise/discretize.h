@@ -82,6 +82,9 @@ class TransitionCache {
   std::unordered_map<std::int64_t, std::uint32_t> index_of_key_;
   std::vector<Transition> transitions_;
   std::size_t discretizations_ = 0;
+  bool has_last_ = false;  // the last lookup, which a regular log repeats row after row
+  std::int64_t last_key_ = 0;
+  std::uint32_t last_index_ = 0;
 };
 
 }  // namespace statewise
