@@ -396,8 +396,6 @@ StructureReport analyze_structure(const StateSpaceModel& model, double dt) {
   } else if (riccati_possible) {
     report.riccati = solve_filter_riccati(A, model.C, Q, model.R);
   }
-  if (report.riccati.status == RiccatiStatus::not_computed)
-    report.warnings.push_back("the steady state was not computed: " + report.riccati.message);
 
   const RankTest& seen = report.observability;
   const std::string drift = model.domain == TimeDomain::continuous ? "F" : "A";

@@ -126,8 +126,9 @@ struct StructureReport {
 };
 
 /// Analyzes a model. A continuous model's steady state is computed for the model discretized over
-/// `dt` seconds (skipped, with a warning, when dt is 0). The model cannot work when some direction
-/// no channel sees is not stable (not detectable), or when the Riccati doubling does not converge. A
+/// `dt` seconds (not computed when dt is 0; `riccati.message` says so). The model cannot work when
+/// some direction no channel sees is not stable (not detectable), or when the Riccati doubling does
+/// not converge. A
 /// converged solution that is not stabilizing (noise-free directions on the stability boundary, e.g.
 /// a constant offset) still works, with a warning: the filter keeps learning them ever more precisely.
 StructureReport analyze_structure(const StateSpaceModel& model, double dt);
