@@ -25,7 +25,8 @@ using detail::JsonContext;
 
 const std::vector<std::string> kTopLevelKeys = {"version", "description", "states", "observations", "inputs",
                                                 "A",       "B",           "C",      "Q",            "R",
-                                                "initial", "time"};
+                                                "initial", "time",        "domain", "step"};
+const std::vector<std::string> kDomainNames = {"discrete", "continuous"};
 
 std::vector<std::string> parse_name_list(const JsonContext& context, const json& value, const std::string& key) {
   if (!value.is_array()) context.fail(key, "expected a list of names, got " + detail::describe(value));
@@ -104,6 +105,13 @@ void check_finite(const Eigen::MatrixXd& matrix, const std::string& file_name, c
                           "expected a finite number, got " + std::to_string(matrix(i, j)));
 }
 
+// Shortest text that reads back to the same double.
+std::string number_text(double value) {
+  char buffer[32];
+  const auto result = std::to_chars(buffer, buffer + sizeof buffer, value);
+  return std::string(buffer, result.ptr);
+}
+
 std::string shape(Eigen::Index rows, Eigen::Index cols) { return std::to_string(rows) + "×" + std::to_string(cols); }
 
 void check_shape(const Eigen::MatrixXd& matrix, Eigen::Index rows, Eigen::Index cols, const std::string& file_name,
@@ -151,6 +159,27 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
   if (!model.time_column.empty() && columns.count(model.time_column))
     raise_input_error({file_name, 0, 0, "time.column"},
                       "the column \"" + model.time_column + "\" is also a channel or an input");
+  if (!(model.step >= 0.0) || !std::isfinite(model.step))
+    raise_input_error({file_name, 0, 0, "step"},
+                      "expected a positive number of seconds, got " + number_text(model.step));
+  if (model.domain == TimeDomain::continuous) {
+    if (model.step > 0.0)
+      raise_input_error({file_name, 0, 0, "step"},
+                        "applies to discrete models only; a continuous model is discretized for each row's own "
+                        "time gap, so remove \"step\"");
+    if (model.time_column.empty())
+      raise_input_error({file_name, 0, 0, "time"},
+                        "missing; a continuous-time model needs a time column for the gaps between rows, "
+                        "e.g. \"time\": {\"column\": \"time\"}");
+  } else if (model.step > 0.0 && model.time_column.empty()) {
+    raise_input_error({file_name, 0, 0, "step"},
+                      "given, but the model has no time column to measure gaps with; add "
+                      "\"time\": {\"column\": ...} or remove \"step\"");
+  }
+}
+
+const char* domain_name(TimeDomain domain) {
+  return domain == TimeDomain::continuous ? "continuous" : "discrete";
 }
 
 StateSpaceModel parse_model(std::string_view json_text, const std::string& file_name) {
@@ -220,6 +249,25 @@ StateSpaceModel parse_model(std::string_view json_text, const std::string& file_
     model.time_column = time["column"].get<std::string>();
   }
 
+  if (root.contains("domain")) {
+    const json& domain = root["domain"];
+    if (!domain.is_string())
+      context.fail("domain", "expected \"discrete\" or \"continuous\", got " + detail::describe(domain));
+    const std::string name = domain.get<std::string>();
+    if (name == "continuous") {
+      model.domain = TimeDomain::continuous;
+    } else if (name != "discrete") {
+      context.fail("domain", "expected \"discrete\" or \"continuous\", got " + detail::describe(domain) +
+                                 did_you_mean(name, kDomainNames));
+    }
+  }
+  if (root.contains("step")) {
+    const json& step = root["step"];
+    if (!step.is_number() || !(step.get<double>() > 0.0) || !std::isfinite(step.get<double>()))
+      context.fail("step", "expected a positive number of seconds, got " + detail::describe(step));
+    model.step = step.get<double>();
+  }
+
   validate_model(model, file_name);
   return model;
 }
@@ -255,6 +303,8 @@ std::string write_model(const StateSpaceModel& model) {
   root["observations"] = model.observation_names;
   if (!model.input_names.empty()) root["inputs"] = model.input_names;
   if (!model.time_column.empty()) root["time"] = detail::OrderedJson{{"column", model.time_column}};
+  if (model.domain == TimeDomain::continuous) root["domain"] = domain_name(model.domain);
+  if (model.step > 0.0) root["step"] = model.step;
   root["A"] = detail::matrix_to_json(model.A);
   if (model.B.cols() > 0) root["B"] = detail::matrix_to_json(model.B);
   root["C"] = detail::matrix_to_json(model.C);

@@ -3,6 +3,8 @@
 #include <charconv>
 #include <cmath>
 
+#include "statewise/statistics.h"
+
 namespace statewise {
 
 void append_number(std::string& out, double value, int digits) {
@@ -28,10 +30,14 @@ void append_text_field(std::string& out, std::string_view text, char delimiter) 
   out += '"';
 }
 
-EstimateTableWriter::EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format)
+EstimateTableWriter::EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format,
+                                         double interval_level)
     : model_(model),
       kind_(kind),
       format_(format),
+      interval_z_(kind == EstimateKind::forecast && interval_level > 0.0 && interval_level < 1.0
+                      ? -normal_quantile(0.5 * (1.0 - interval_level))
+                      : std::nan("")),
       channel_mean_(model.C.rows()),
       covariance_times_ct_(model.A.rows(), model.C.rows()) {}
 
@@ -56,6 +62,10 @@ void EstimateTableWriter::append_header(std::string& out) const {
     if (kind_ == EstimateKind::filtered) {
       column(c + "_innov");
       column(c + "_z");
+    }
+    if (kind_ == EstimateKind::forecast) {
+      column(c + "_lo");
+      column(c + "_hi");
     }
   }
   out += '\n';
@@ -104,6 +114,14 @@ void EstimateTableWriter::append_row(std::string& out, std::string_view time_tex
       append_number(out, innovation, digits);
       out += d;
       append_number(out, innovation / sd, digits);
+    }
+    if (kind_ == EstimateKind::forecast) {
+      // A new measurement y = C x + v has variance c P c' + R_cc.
+      const double half_width = interval_z_ * std::sqrt(std::max(variance + model_.R(c, c), 0.0));
+      out += d;
+      append_number(out, estimate - half_width, digits);
+      out += d;
+      append_number(out, estimate + half_width, digits);
     }
   }
   out += '\n';

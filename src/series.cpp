@@ -34,8 +34,10 @@ bool ObservationStream::next(ObservationRow& row) {
   if (time_column_ != kNoColumn) {
     const std::string_view text = reader_.field(time_column_);
     row.time_text.assign(text.begin(), text.end());
+    row.time_column = reader_.column(time_column_);
   } else {
     row.time_text.clear();
+    row.time_column = 0;
   }
   row.line = reader_.line();
   return true;

@@ -233,9 +233,9 @@ const char* kSingularData = "a,b\n0.5,\n1,1\n2,2\n";
 // Three rows of the cold-room columns with two sentinels, -999 and -5.
 const char* kSentinelData =
     "time,probe_a,probe_b,compressor\n"
-    "t1,-999,-18.1,0\n"
-    "t2,-17.9,-5,0\n"
-    "t3,-18.0,-18.2,1\n";
+    "1,-999,-18.1,0\n"
+    "2,-17.9,-5,0\n"
+    "3,-18.0,-18.2,1\n";
 
 }  // namespace
 
@@ -297,7 +297,7 @@ TEST_SUITE("cli") {
       CHECK(result.err == "statewise: error: nope.csv: cannot open (No such file or directory)\n");
     }
     SUBCASE("a column the model names is not in the CSV") {
-      box.write("typo.csv", "time,probe_a,probe_b,compresor\nt1,1,2,0\n");
+      box.write("typo.csv", "time,probe_a,probe_b,compresor\n1,1,2,0\n");
       const RunResult result = box.run({"smooth", "-m", "model.json", "typo.csv"});
       CHECK(result.status == 2);
       CHECK(result.err ==
@@ -306,19 +306,19 @@ TEST_SUITE("cli") {
       CHECK(result.out == "");
     }
     SUBCASE("an unparsable cell") {
-      box.write("bad.csv", "time,probe_a,probe_b,compressor\nt1,-18,-18,0\nt2,x2,-18,0\n");
+      box.write("bad.csv", "time,probe_a,probe_b,compressor\n1,-18,-18,0\n2,x2,-18,0\n");
       const RunResult result = box.run({"smooth", "-m", "model.json", "bad.csv"});
       CHECK(result.status == 2);
       CHECK(result.err ==
-            "statewise: error: bad.csv:3:4: cannot read \"x2\" in column \"probe_a\" as a number\n");
+            "statewise: error: bad.csv:3:3: cannot read \"x2\" in column \"probe_a\" as a number\n");
       CHECK(result.out == "");
     }
     SUBCASE("a missing input value") {
-      box.write("noinput.csv", "time,probe_a,probe_b,compressor\nt1,-18,-18,\n");
+      box.write("noinput.csv", "time,probe_a,probe_b,compressor\n1,-18,-18,\n");
       const RunResult result = box.run({"filter", "-m", "model.json", "noinput.csv"});
       CHECK(result.status == 2);
       CHECK(result.err ==
-            "statewise: error: noinput.csv:2:12: the input \"compressor\" is missing; inputs are "
+            "statewise: error: noinput.csv:2:11: the input \"compressor\" is missing; inputs are "
             "known quantities and must be given on every row\n");
     }
     SUBCASE("an empty CSV") {
@@ -381,7 +381,7 @@ TEST_SUITE("cli") {
   TEST_CASE("-o FILE: a failed run leaves FILE as it was and no temporary file behind") {
     Sandbox box;
     box.copy_example();
-    box.write("bad.csv", "time,probe_a,probe_b,compressor\nt1,-18,-18,0\nt2,-18,-18,0\nt3,oops,-18,0\n");
+    box.write("bad.csv", "time,probe_a,probe_b,compressor\n1,-18,-18,0\n2,-18,-18,0\n3,oops,-18,0\n");
     box.write("singular.json", kSingularModel);
     box.write("singular.csv", kSingularData);
     const std::string original = "previous results\nkeep me\n";
@@ -525,7 +525,7 @@ TEST_SUITE("cli") {
   TEST_CASE("--report: a channel without data gives a warning and null statistics") {
     Sandbox box;
     box.copy_example();
-    box.write("no_b.csv", "time,probe_a,probe_b,compressor\nt1,-18,,0\nt2,-18.1,NA,0\nt3,-17.9,,1\n");
+    box.write("no_b.csv", "time,probe_a,probe_b,compressor\n1,-18,,0\n2,-18.1,NA,0\n3,-17.9,,1\n");
     const RunResult result = box.run({"filter", "-m", "model.json", "--report", "report.json", "no_b.csv"});
     REQUIRE(result.status == 0);
     const nlohmann::json report = nlohmann::json::parse(box.read("report.json"));
@@ -647,10 +647,10 @@ TEST_SUITE("cli") {
     CHECK(piped.status == 0);
     CHECK(piped.out == from_file.out);
     // Messages name standard input <stdin>.
-    box.write("bad.csv", "time,probe_a,probe_b,compressor\nt1,-18,?,0\n");
+    box.write("bad.csv", "time,probe_a,probe_b,compressor\n1,-18,?,0\n");
     const RunResult bad = box.run({"filter", "-m", "model.json"}, "bad.csv");
     CHECK(bad.status == 2);
-    CHECK(bad.err == "statewise: error: <stdin>:2:8: cannot read \"?\" in column \"probe_b\" as a number\n");
+    CHECK(bad.err == "statewise: error: <stdin>:2:7: cannot read \"?\" in column \"probe_b\" as a number\n");
   }
 
   TEST_CASE("--delimiter semicolon and tab read the same log and the output stays comma-separated") {

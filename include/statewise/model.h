@@ -5,7 +5,9 @@
 ///
 /// Convention: `initial` is the prior for the state at the first row;
 ///   x_t = A x_{t-1} + B u_{t-1} + w_t,   y_t = C x_t + v_t,   w ~ N(0, Q), v ~ N(0, R),
-/// all independent, where u_{t-1} is the inputs row before row t.
+/// all independent, where u_{t-1} is the inputs row before row t. For a continuous-time model
+/// (domain continuous) A, B and Q describe dx = (A x + B u) dt + dW with E[dW dW'] = Q dt instead, and
+/// each step is discretized for the time between its two rows (discretize.h).
 
 #include <string>
 #include <string_view>
@@ -14,6 +16,12 @@
 #include <Eigen/Core>
 
 namespace statewise {
+
+/// How a model's A, B and Q relate to time (model key "domain").
+enum class TimeDomain {
+  discrete,    ///< A, B, Q describe one model step: one row, or `step` seconds when the model gives a step
+  continuous,  ///< A is the drift F, B the input matrix G, Q the spectral density of dx = (F x + G u) dt + dW
+};
 
 /// Variance put on the diagonal of the initial covariance when the model file gives none.
 inline constexpr double kDefaultInitialVariance = 1e6;
@@ -25,14 +33,19 @@ struct StateSpaceModel {
   std::vector<std::string> state_names;        ///< n names (default x1..xn)
   std::vector<std::string> observation_names;  ///< m CSV column names of the measured channels
   std::vector<std::string> input_names;        ///< p CSV column names of the known inputs (may be empty)
-  Eigen::MatrixXd A;                           ///< n×n state transition
-  Eigen::MatrixXd B;                           ///< n×p input matrix (n×0 when there are no inputs)
+  Eigen::MatrixXd A;                           ///< n×n state transition (continuous: the drift F, 1/s)
+  Eigen::MatrixXd B;                           ///< n×p input matrix, n×0 without inputs (continuous: G, per s)
   Eigen::MatrixXd C;                           ///< m×n observation matrix
-  Eigen::MatrixXd Q;                           ///< n×n process noise covariance, symmetric PSD
+  /// n×n process noise covariance, symmetric PSD (continuous: the spectral density of W, per second)
+  Eigen::MatrixXd Q;
   Eigen::MatrixXd R;                           ///< m×m measurement noise covariance, symmetric PSD
   Eigen::VectorXd initial_mean;                ///< n, prior mean of the state at the first row
   Eigen::MatrixXd initial_covariance;          ///< n×n, prior covariance, symmetric PSD
-  std::string time_column;                     ///< CSV column copied to the output; empty when none
+  std::string time_column;                     ///< CSV column with each row's time; empty when none
+  TimeDomain domain = TimeDomain::discrete;    ///< "domain"; continuous models need a time column
+  /// "step": seconds per model step of a discrete model, > 0; 0 = none (each row is one step). A
+  /// gap of k steps between rows is propagated as k steps. Only for discrete models with a time column.
+  double step = 0.0;
 
   /// Number of states n.
   int state_count() const { return static_cast<int>(A.rows()); }
@@ -53,7 +66,11 @@ StateSpaceModel load_model(const std::string& path);
 /// covariance, and name uniqueness; raises InputError naming `file_name` and the key.
 void validate_model(const StateSpaceModel& model, const std::string& file_name);
 
-/// Writes the model as model-file JSON text (format version 1, plain matrices), numbers in
+/// The model-file spelling of a domain: "discrete" or "continuous".
+const char* domain_name(TimeDomain domain);
+
+/// Writes the model as model-file JSON text (format version 1, plain matrices; "domain" when
+/// continuous, "step" when set), numbers in
 /// shortest round-trip form, so that parse_model(write_model(m)) reproduces m exactly.
 std::string write_model(const StateSpaceModel& model);
 

@@ -2,7 +2,8 @@
 /// \file output_table.h
 /// Formats estimates as rows of delimited text, the columns documented in docs/outputs.md:
 /// the time column if declared; per state s: `s`, `s_sd`; per channel c: `c_est`, `c_sd`,
-/// `c_filled`, `c_imputed`; for the filter also `c_innov` and `c_z`. Missing numbers are empty cells;
+/// `c_filled`, `c_imputed`; for the filter also `c_innov` and `c_z`; for a forecast also `c_lo` and
+/// `c_hi`, a prediction interval for a new measurement. Missing numbers are empty cells;
 /// numbers are written in shortest round-trip form (std::to_chars) or with a chosen number of
 /// significant digits.
 
@@ -20,6 +21,7 @@ namespace statewise {
 enum class EstimateKind {
   filtered,  ///< filter: adds c_innov and c_z
   smoothed,  ///< smooth
+  forecast,  ///< forecast: adds c_lo and c_hi, the interval C x ∓ z sqrt(C P C' + R)_cc for a new measurement
 };
 
 /// How numbers and fields are written.
@@ -37,8 +39,10 @@ void append_text_field(std::string& out, std::string_view text, char delimiter);
 /// Writes the header and rows of an estimates table into a caller-owned string buffer.
 class EstimateTableWriter {
  public:
-  /// Prepares columns for `model`.
-  EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format);
+  /// Prepares columns for `model`. `interval_level` in (0, 1) is the coverage of the forecast
+  /// interval (EstimateKind::forecast only).
+  EstimateTableWriter(const StateSpaceModel& model, EstimateKind kind, TableFormat format,
+                      double interval_level = 0.95);
   /// Appends the header line.
   void append_header(std::string& out) const;
   /// Appends one row. `values` are the row's m measured values (NaN = missing); `innovations` is
@@ -51,6 +55,7 @@ class EstimateTableWriter {
   const StateSpaceModel& model_;
   EstimateKind kind_;
   TableFormat format_;
+  double interval_z_;  // standard normal quantile at (1 + level) / 2
   mutable Eigen::VectorXd channel_mean_;
   mutable Eigen::MatrixXd covariance_times_ct_;
 };

@@ -20,6 +20,7 @@ struct ObservationRow {
   std::vector<double> inputs;  ///< p input values (never missing)
   std::string time_text;       ///< the time column's text, empty when the model declares none
   std::size_t line = 0;        ///< 1-based line of the row in the input
+  std::size_t time_column = 0;  ///< 1-based column where the time field starts; 0 without a time column
 };
 
 /// Binds a model's columns to a CSV header and reads rows. Raises InputError for a column the model

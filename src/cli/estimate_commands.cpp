@@ -4,15 +4,18 @@
 
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
+#include "cli/log_input.h"
 #include "cli/output_file.h"
 #include "statewise/csv.h"
 #include "statewise/diagnostics.h"
+#include "statewise/discretize.h"
 #include "statewise/error.h"
 #include "statewise/filter.h"
 #include "statewise/output_table.h"
 #include "statewise/report.h"
 #include "statewise/series.h"
 #include "statewise/smoother.h"
+#include "statewise/time_axis.h"
 
 namespace statewise::cli {
 
@@ -26,20 +29,40 @@ char parse_delimiter(const std::string& text) {
 
 namespace {
 
+// Transitions kept by the streaming filter: enough for every gap of a regular or step-based log,
+// bounded for an endless stream of ever-new gaps.
+constexpr std::size_t kStreamingCacheCapacity = 256;
+
 CsvOptions csv_options(const EstimateOptions& options) {
-  CsvOptions csv;
-  csv.delimiter = parse_delimiter(options.delimiter);
-  csv.missing_tokens = options.missing_tokens;
-  return csv;
+  return make_csv_options(options.delimiter, options.missing_tokens);
 }
 
-std::string row_place(const CsvReader& reader, std::size_t line) {
-  return reader.display_name() + ":" + std::to_string(line);
+TimelineOptions timeline_options(const EstimateOptions& options) {
+  TimelineOptions timeline;
+  timeline.duplicates = parse_duplicate_policy(options.duplicates);
+  timeline.regular_step = options.regular_step;
+  return timeline;
 }
 
-[[noreturn]] void fail_step(StepStatus status, const CsvReader& reader, std::size_t line) {
-  throw NumericalFailure{row_place(reader, line) + ": " + describe(status) +
-                         "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
+[[noreturn]] void fail_step(StepStatus status, const std::string& place) {
+  throw NumericalFailure{
+      place + ": " + describe(status) +
+      "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
+}
+
+void add_timeline_warnings(RunReport& report, const Timeline& timeline, const SpacingWatch& spacing,
+                           const EstimateOptions& options) {
+  if (timeline.inserted_rows() > 0)
+    report.warnings.push_back(
+        std::to_string(timeline.inserted_rows()) +
+        " rows were inserted on the --regular grid where the log had none; every channel "
+        "is imputed there");
+  if (timeline.merged_rows() > 0)
+    report.warnings.push_back(std::to_string(timeline.merged_rows()) +
+                              " rows repeated an earlier row's time and were merged into it (--duplicates " +
+                              options.duplicates + ")");
+  const std::string spacing_warning = spacing.warning();
+  if (!spacing_warning.empty()) report.warnings.push_back(spacing_warning);
 }
 
 void add_channel_warnings(RunReport& report) {
@@ -72,52 +95,79 @@ void finish_report(RunReport& report, const InnovationAccumulator& accumulator, 
 
 int run_filter(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);
+  check_sort_flag(model, options.sort);
+  Timeline timeline(model, timeline_options(options),
+                    options.input_path == "-" ? "<stdin>" : options.input_path);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
 
   const EstimateTableWriter writer(model, EstimateKind::filtered, TableFormat{',', options.digits});
-  const Transition transition = model_transition(model);
+  TransitionCache transitions(model, kStreamingCacheCapacity);
+  SpacingWatch spacing(model, options.regular_step);
   KalmanFilter filter(model);
   InnovationAccumulator accumulator(model.observation_names);
   InnovationRecord record = make_innovation_record(model.channel_count());
   std::string buffer;
   writer.append_header(buffer);
-  ObservationRow row, previous;
+  std::vector<double> previous_inputs;
   bool first = true;
-  while (stream.next(row)) {
-    if (!first) filter.predict(transition, previous.inputs.empty() ? nullptr : previous.inputs.data());
-    const StepStatus status = filter.update(row.values.data(), record);
-    if (status != StepStatus::ok) fail_step(status, reader, row.line);
+  read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
+    if (!first)
+      filter.predict(transitions.transition(row.gap),
+                     previous_inputs.empty() ? nullptr : previous_inputs.data());
+    const StepStatus status = filter.update(row.row.values.data(), record);
+    if (status != StepStatus::ok) fail_step(status, row_place(reader.display_name(), row));
     accumulator.add(record);
-    writer.append_row(buffer, row.time_text, row.values.data(), filter.mean(), filter.covariance(), &record);
+    spacing.add(row);
+    writer.append_row(buffer, row.row.time_text, row.row.values.data(), filter.mean(), filter.covariance(),
+                      &record);
     if (output.interactive()) {
       output.write_buffer(buffer);
       output.flush();
     } else if (buffer.size() >= (1u << 16)) {
       output.write_buffer(buffer);
     }
-    std::swap(previous, row);
+    previous_inputs = row.row.inputs;
     first = false;
-  }
+  });
   output.write_buffer(buffer);
   output.commit();
   RunReport report = start_report("filter", options, model);
+  add_timeline_warnings(report, timeline, spacing, options);
   finish_report(report, accumulator, options);
   return kExitSuccess;
 }
 
 int run_smooth(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);
+  check_sort_flag(model, options.sort);
+  Timeline timeline(model, timeline_options(options),
+                    options.input_path == "-" ? "<stdin>" : options.input_path);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
-  const ObservationSeries series = read_series(stream, model);
+
+  // The whole timeline in memory, with the transition that reaches each row from the one before.
+  ObservationSeries series;
+  series.channels = model.channel_count();
+  series.input_count = model.input_count();
+  series.has_time = !model.time_column.empty();
+  TransitionCache transitions(model);
+  TransitionSchedule schedule;
+  SpacingWatch spacing(model, options.regular_step);
+  read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
+    if (series.rows() > 0) schedule.index_of_step.push_back(transitions.index(row.gap));
+    series.push_back(row.row);
+    spacing.add(row);
+  });
+  schedule.transitions = transitions.take_transitions();
   const std::size_t rows = series.rows();
+  if (schedule.transitions.size() <= 1) schedule.index_of_step.clear();  // one transition serves every step
+  if (schedule.transitions.empty()) schedule.transitions.push_back(model_transition(model));
+  const std::string& file = reader.display_name();
 
   // Forward pass: filter every row, keeping the filtered moments for the backward pass.
-  TransitionSchedule schedule;
-  schedule.transitions.push_back(model_transition(model));
   KalmanFilter filter(model);
   InnovationAccumulator accumulator(model.observation_names);
   InnovationRecord record = make_innovation_record(model.channel_count());
@@ -126,14 +176,16 @@ int run_smooth(const EstimateOptions& options) {
   for (std::size_t t = 0; t < rows; ++t) {
     if (t > 0) filter.predict(schedule.step(t - 1), series.row_inputs(t - 1));
     const StepStatus status = filter.update(series.row_values(t), record);
-    if (status != StepStatus::ok) fail_step(status, reader, series.lines[t]);
+    if (status != StepStatus::ok) fail_step(status, row_place(file, series.lines[t], series.time_text(t)));
     accumulator.add(record);
     track.push_back(filter.mean(), filter.covariance());
   }
 
   // Backward pass, in place.
   const SmoothStatus smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
-  if (!smoothed.ok) throw NumericalFailure{row_place(reader, series.lines[smoothed.row]) + ": " + smoothed.message};
+  if (!smoothed.ok)
+    throw NumericalFailure{row_place(file, series.lines[smoothed.row], series.time_text(smoothed.row)) +
+                           ": " + smoothed.message};
 
   const EstimateTableWriter writer(model, EstimateKind::smoothed, TableFormat{',', options.digits});
   std::string buffer;
@@ -149,6 +201,7 @@ int run_smooth(const EstimateOptions& options) {
   if (smoothed.pseudo_inverse_rows > 0)
     report.warnings.push_back("the predicted covariance was singular on " + std::to_string(smoothed.pseudo_inverse_rows) +
                               " rows; the smoother used a pseudo-inverse there (Q may be zero in some direction)");
+  add_timeline_warnings(report, timeline, spacing, options);
   finish_report(report, accumulator, options);
   return kExitSuccess;
 }

@@ -33,6 +33,19 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
   command.add_option("--digits", options.digits, "Significant digits of output numbers; 0 = shortest exact")
       ->capture_default_str()
       ->check(CLI::Range(0, 17));
+  command.add_flag("--sort", options.sort,
+                   "Sort the rows by time before estimating (reads the whole log first)");
+  command
+      .add_option("--duplicates", options.duplicates,
+                  "Rows with the same time: error, or merge them per channel: first, last or mean")
+      ->capture_default_str();
+}
+
+void add_regular_option(CLI::App& command, EstimateOptions& options) {
+  command.add_option(
+      "--regular", options.regular_step,
+      "Output a complete timeline on a grid of STEP seconds from the first row, inserting rows "
+      "(every channel imputed) where the log has none");
 }
 
 int report_error(const std::string& message, int code) {
@@ -52,8 +65,64 @@ int main(int argc, char** argv) {
   EstimateOptions filter_options, smooth_options;
   CLI::App* filter = app.add_subcommand("filter", "Run the Kalman filter over a log, row by row");
   add_estimate_options(*filter, filter_options);
+  add_regular_option(*filter, filter_options);
   CLI::App* smooth = app.add_subcommand("smooth", "Estimate every row from the whole log (RTS smoother)");
   add_estimate_options(*smooth, smooth_options);
+  add_regular_option(*smooth, smooth_options);
+
+  ForecastOptions forecast_options;
+  CLI::App* forecast = app.add_subcommand(
+      "forecast", "Filter a log, then predict rows past its end with intervals for new measurements");
+  add_estimate_options(*forecast, forecast_options);
+  CLI::Option* horizon =
+      forecast->add_option("--horizon", forecast_options.horizon, "Number of future rows to predict");
+  forecast->add_option("--until", forecast_options.until, "Predict up to this time (in the log's time form)")
+      ->excludes(horizon);
+  forecast->add_option("--step", forecast_options.step,
+                       "Seconds between future rows (default: the model's step, or the log's median gap)");
+  forecast->add_option("--level", forecast_options.level, "Coverage of the prediction intervals c_lo..c_hi")
+      ->capture_default_str();
+
+  CheckOptions check_options;
+  CLI::App* check = app.add_subcommand(
+      "check",
+      "Report whether a model can work: observability, noise reach, stability, steady state; with a log, "
+      "missing values and gaps (exit status 3 when it cannot work)");
+  check->add_option("-m,--model", check_options.model_path, "Model file (JSON, docs/model-format.md)")
+      ->required();
+  check->add_option("input", check_options.input_path,
+                    "Optional log to report missing values and gaps of; - for "
+                    "standard input");
+  check->add_option("--report", check_options.report_path, "Also write the report as JSON to this file");
+  check
+      ->add_option("--delimiter", check_options.delimiter,
+                   "Field separator of the log: one character, or tab")
+      ->capture_default_str();
+  check
+      ->add_option("--missing", check_options.missing_tokens,
+                   "Extra cell text meaning 'no value' (repeatable)")
+      ->allow_extra_args(false);
+  check->add_flag("--sort", check_options.sort, "Sort the log's rows by time first");
+  check
+      ->add_option("--duplicates", check_options.duplicates,
+                   "Rows with the same time: error, or merge them per channel: first, last or mean")
+      ->capture_default_str();
+  check->add_option(
+      "--dt", check_options.dt,
+      "Continuous models: seconds between rows for the steady state (default: the log's median gap)");
+
+  DiscretizeOptions discretize_options;
+  CLI::App* discretize = app.add_subcommand(
+      "discretize", "Print the discrete model equivalent to a model over a step of --dt seconds");
+  discretize
+      ->add_option("-m,--model", discretize_options.model_path,
+                   "Model file: continuous, or discrete with a step")
+      ->required();
+  discretize->add_option("--dt", discretize_options.dt, "The step in seconds")->required();
+  discretize
+      ->add_option("-o,--output", discretize_options.output_path,
+                   "Where to write the model; - for standard output")
+      ->capture_default_str();
 
   try {
     app.parse(argc, argv);
@@ -70,6 +139,9 @@ int main(int argc, char** argv) {
   try {
     if (filter->parsed()) return run_filter(filter_options);
     if (smooth->parsed()) return run_smooth(smooth_options);
+    if (forecast->parsed()) return run_forecast(forecast_options);
+    if (check->parsed()) return run_check(check_options);
+    if (discretize->parsed()) return run_discretize(discretize_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
   } catch (const NumericalFailure& e) {
