@@ -33,6 +33,17 @@ struct StateSpaceModel {
   Eigen::VectorXd initial_mean;                ///< n, prior mean of the state at the first row
   Eigen::MatrixXd initial_covariance;          ///< n×n, prior covariance, symmetric PSD
   std::string time_column;                     ///< CSV column copied to the output; empty when none
+  /// n flags, or empty for none: true where the state's initial value is unknown (exact diffuse
+  /// initialization, Durbin and Koopman 2012, chapter 5). A diffuse state's entries of initial_mean
+  /// and initial_covariance (rows and columns) are zero and unused.
+  std::vector<bool> diffuse;
+
+  /// True when at least one state is diffuse.
+  bool has_diffuse_states() const {
+    for (const bool flag : diffuse)
+      if (flag) return true;
+    return false;
+  }
 
   /// Number of states n.
   int state_count() const { return static_cast<int>(A.rows()); }

@@ -7,6 +7,7 @@
 #include "cli/output_file.h"
 #include "statewise/csv.h"
 #include "statewise/diagnostics.h"
+#include "statewise/diffuse.h"
 #include "statewise/error.h"
 #include "statewise/filter.h"
 #include "statewise/output_table.h"
@@ -90,7 +91,8 @@ int run_filter(const EstimateOptions& options) {
     const StepStatus status = filter.update(row.values.data(), record);
     if (status != StepStatus::ok) fail_step(status, reader, row.line);
     accumulator.add(record);
-    writer.append_row(buffer, row.time_text, row.values.data(), filter.mean(), filter.covariance(), &record);
+    writer.append_row(buffer, row.time_text, row.values.data(), filter.mean(), filter.covariance(), &record,
+                      filter.diffuse_covariance());
     if (output.interactive()) {
       output.write_buffer(buffer);
       output.flush();
@@ -131,8 +133,20 @@ int run_smooth(const EstimateOptions& options) {
     track.push_back(filter.mean(), filter.covariance());
   }
 
-  // Backward pass, in place.
-  const SmoothStatus smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
+  // Backward pass, in place; the exact diffuse smoother when some states start with no prior.
+  SmoothStatus smoothed;
+  bool diffuse_unresolved = false;
+  if (model.has_diffuse_states()) {
+    ExactSmoothing exact = exact_smooth(model, series, false);
+    diffuse_unresolved = !exact.likelihood.diffuse_resolved;
+    if (exact.likelihood.status == StepStatus::ok) {
+      track = std::move(exact.track);
+    } else {
+      smoothed = SmoothStatus{false, exact.likelihood.row, describe(exact.likelihood.status), 0};
+    }
+  } else {
+    smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
+  }
   if (!smoothed.ok) throw NumericalFailure{row_place(reader, series.lines[smoothed.row]) + ": " + smoothed.message};
 
   const EstimateTableWriter writer(model, EstimateKind::smoothed, TableFormat{',', options.digits});
@@ -149,6 +163,9 @@ int run_smooth(const EstimateOptions& options) {
   if (smoothed.pseudo_inverse_rows > 0)
     report.warnings.push_back("the predicted covariance was singular on " + std::to_string(smoothed.pseudo_inverse_rows) +
                               " rows; the smoother used a pseudo-inverse there (Q may be zero in some direction)");
+  if (diffuse_unresolved)
+    report.warnings.push_back("the data do not determine every diffuse initial state (no channel sees it); "
+                              "their estimates are not meaningful");
   finish_report(report, accumulator, options);
   return kExitSuccess;
 }

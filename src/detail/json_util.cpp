@@ -170,7 +170,19 @@ Eigen::Index matrix_rows(const JsonContext& context, const json& value, const st
   context.fail(key, "expected a matrix (a list of rows), got " + describe(value));
 }
 
+bool is_estimate_marker(const json& value) {
+  return (value.is_string() && value.get_ref<const std::string&>() == "estimate") ||
+         (value.is_object() && value.contains("estimate"));
+}
+
+void reject_estimate_marker(const JsonContext& context, const json& value, const std::string& key) {
+  if (is_estimate_marker(value))
+    context.fail(key, "is marked \"estimate\"; estimate it first with `statewise fit -m " + context.file_name +
+                          " data.csv -o fitted.json` and use the fitted model file");
+}
+
 double parse_number(const JsonContext& context, const json& value, const std::string& key) {
+  reject_estimate_marker(context, value, key);
   if (!value.is_number()) context.fail(key, "expected a number, got " + describe(value));
   const double number = value.get<double>();
   if (!std::isfinite(number)) context.fail(key, "expected a finite number, got " + value.dump());
@@ -180,6 +192,7 @@ double parse_number(const JsonContext& context, const json& value, const std::st
 Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index rows, Eigen::Index cols, const std::string& what) {
   const std::string expected = std::to_string(rows) + "×" + std::to_string(cols) + " matrix (" + what + ")";
+  reject_estimate_marker(context, value, key);
   if (value.is_number()) {
     if (rows != 1 || cols != 1) context.fail(key, "expected a " + expected + ", got a single number");
     return Eigen::MatrixXd::Constant(1, 1, parse_number(context, value, key));
@@ -204,6 +217,7 @@ Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, cons
 
 Eigen::VectorXd parse_vector(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index size, const std::string& what) {
+  reject_estimate_marker(context, value, key);
   if (value.is_number() && size == 1) return Eigen::VectorXd::Constant(1, parse_number(context, value, key));
   if (!value.is_array() || static_cast<Eigen::Index>(value.size()) != size)
     context.fail(key, "expected a list of " + std::to_string(size) + " numbers (" + what + "), got " + describe(value));
