@@ -49,6 +49,7 @@ Value read_value(const JsonContext& context, const json& value, const std::strin
   if (detail::is_estimate_marker(value)) {
     Value result;
     result.estimate = true;
+    result.number = 1.0;  // for a marker, the "times" factor of the entry it becomes
     result.name = key;
     if (value.is_object()) {
       detail::reject_unknown_keys(context, value, key, {"estimate", "start"});

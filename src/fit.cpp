@@ -9,8 +9,8 @@
 
 #include <Eigen/Cholesky>
 #include <Eigen/Eigenvalues>
-// LBFGSpp (Debian liblbfgspp-dev), header-only: L-BFGS-B with bounds.
-#include <LBFGSB.h>
+// LBFGSpp (Debian liblbfgspp-dev), header-only.
+#include <LBFGS.h>
 
 #include "detail/json_util.h"
 #include "statewise/diffuse.h"
@@ -21,11 +21,12 @@ namespace statewise {
 namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
-// A variance below this share of its data scale is reported as zero (docs/algorithms.md).
+// A variance below kZeroVarianceShare of its data scale went to zero; one below kSmallVarianceShare
+// did when setting it to zero lowers log L by less than kNegligibleLogLikelihood (docs/algorithms.md).
 constexpr double kZeroVarianceShare = 1e-9;
-// Log-variances are searched within this many e-folds of their data scale (about 1e-13 to 1e13 times it).
-constexpr double kLogVarianceRange = 30.0;
-// Penalty for a point where the log-likelihood cannot be computed (L-BFGS-B then steps back).
+constexpr double kSmallVarianceShare = 1e-4;
+constexpr double kNegligibleLogLikelihood = 1e-4;
+// Penalty for a point where the log-likelihood cannot be computed (the line search then steps back).
 constexpr double kInvalidObjective = 1e30;
 
 bool is_covariance(ModelMatrix matrix) { return matrix == ModelMatrix::Q || matrix == ModelMatrix::R; }
@@ -556,7 +557,7 @@ std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evalu
   return errors;
 }
 
-// ---- L-BFGS-B -----------------------------------------------------------------------------------
+// ---- L-BFGS -------------------------------------------------------------------------------------
 
 struct Objective {
   const EstimationSpec& spec;
@@ -707,20 +708,20 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
   Eigen::VectorXd values = starting_values(model_template, scales);
   const Eigen::VectorXd start = values;
 
+  // The data scale for every variance (and zero covariances), whatever the file's "start" says.
+  Eigen::VectorXd fallback = values;
+  for (std::size_t p = 0; p < spec.size(); ++p)
+    if (spec.parameters[p].kind != ParameterKind::coefficient)
+      fallback(static_cast<Eigen::Index>(p)) = spec.parameters[p].kind == ParameterKind::variance ? scales[p] : 0.0;
+  for (const auto& block : spec.full_blocks) {
+    std::size_t k = 0;
+    for (Eigen::Index i = 0; i < block.size; ++i)
+      for (Eigen::Index j = 0; j <= i; ++j, ++k)
+        if (i == j) fallback(block.parameters[k]) = scales[static_cast<std::size_t>(block.parameters[k])];
+  }
   double log_likelihood = evaluator.log_likelihood(values);
   if (std::isnan(log_likelihood)) {
     // A bad start (e.g. a zero variance that makes a channel exact): retry from the data scale.
-    Eigen::VectorXd fallback = values;
-    for (std::size_t p = 0; p < spec.size(); ++p)
-      if (spec.parameters[p].kind != ParameterKind::coefficient) fallback(static_cast<Eigen::Index>(p)) = 0.0;
-    for (std::size_t p = 0; p < spec.size(); ++p)
-      if (spec.parameters[p].kind == ParameterKind::variance) fallback(static_cast<Eigen::Index>(p)) = scales[p];
-    for (const auto& block : spec.full_blocks) {
-      std::size_t k = 0;
-      for (Eigen::Index i = 0; i < block.size; ++i)
-        for (Eigen::Index j = 0; j <= i; ++j, ++k)
-          if (i == j) fallback(block.parameters[k]) = scales[static_cast<std::size_t>(block.parameters[k])];
-    }
     log_likelihood = evaluator.log_likelihood(fallback);
     if (std::isnan(log_likelihood)) {
       result.status = FitStatus::failed;
@@ -789,76 +790,81 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
   }
   result.method = result.em_iterations > 0 ? "em" : "";
 
-  // L-BFGS-B.
+  // L-BFGS.
   if (options.method != FitMethod::em && spec.size() > 0) {
     result.method += result.method.empty() ? "mle" : "+mle";
+    // A start many orders of magnitude off can leave a variance where the likelihood hardly depends
+    // on it (a noise far below another), which EM cannot leave either: begin from the data scale
+    // instead when that is better.
+    const double at_data_scale = evaluator.log_likelihood(fallback);
+    if (!std::isnan(at_data_scale) && at_data_scale > log_likelihood) {
+      values = fallback;
+      log_likelihood = at_data_scale;
+      result.warnings.push_back("the starting values were far off; the search began from values chosen from the data");
+    }
     Eigen::VectorXd theta = to_search(spec, values, scales);
-    Eigen::VectorXd lower = Eigen::VectorXd::Constant(theta.size(), -std::numeric_limits<double>::infinity());
-    Eigen::VectorXd upper = Eigen::VectorXd::Constant(theta.size(), std::numeric_limits<double>::infinity());
-    for (std::size_t p = 0; p < spec.size(); ++p) {
-      const bool logged = spec.parameters[p].kind == ParameterKind::variance;
-      if (!logged) continue;
-      lower(static_cast<Eigen::Index>(p)) = std::log(scales[p]) - kLogVarianceRange;
-      upper(static_cast<Eigen::Index>(p)) = std::log(scales[p]) + kLogVarianceRange;
-    }
-    for (const auto& block : spec.full_blocks) {
-      std::size_t k = 0;
-      for (Eigen::Index i = 0; i < block.size; ++i)
-        for (Eigen::Index j = 0; j <= i; ++j, ++k)
-          if (i == j) {
-            const double s = std::log(scales[static_cast<std::size_t>(block.parameters[k])]) / 2.0;
-            lower(block.parameters[k]) = s - kLogVarianceRange / 2.0;
-            upper(block.parameters[k]) = s + kLogVarianceRange / 2.0;
-          }
-    }
-    theta = theta.cwiseMax(lower).cwiseMin(upper);
-    LBFGSpp::LBFGSBParam<double> parameters;
+    LBFGSpp::LBFGSParam<double> parameters;
     parameters.epsilon = options.gradient_tolerance;
     parameters.epsilon_rel = 0.0;
     parameters.past = 3;
     parameters.delta = 1e-13;
     parameters.max_iterations = options.max_mle_iterations;
-    LBFGSpp::LBFGSBSolver<double> solver(parameters);
-    Objective objective{spec, evaluator, static_cast<double>(std::max<std::size_t>(1, exact_log_likelihood(result.model, series).observed_values)), theta};
+    parameters.max_linesearch = 60;
+    // Backtracking with the Armijo rule: it only needs values along the line, so a trial point where
+    // the log-likelihood cannot be computed simply halves the step.
+    LBFGSpp::LBFGSSolver<double, LBFGSpp::LineSearchBacktracking> solver(parameters);
+    Objective objective{spec, evaluator,
+                        static_cast<double>(std::max<std::size_t>(1, exact_log_likelihood(result.model, series).observed_values)),
+                        theta};
     double f = 0.0;
-    try {
-      result.mle_iterations = solver.minimize(objective, theta, f, lower, upper);
-      if (result.mle_iterations >= options.max_mle_iterations) {
-        result.status = FitStatus::iteration_limit;
-        result.message = "L-BFGS-B reached its limit of " + std::to_string(options.max_mle_iterations) +
-                         " iterations before converging";
+    // LBFGSpp throws when its line search cannot progress: near the maximum that is the limit of the
+    // numerical gradient's precision, elsewhere a region where the curvature changes fast. Restart
+    // from the best point while that still gains.
+    for (int attempt = 0;; ++attempt) {
+      const double best_before = objective.best;
+      try {
+        result.mle_iterations += solver.minimize(objective, theta, f);
+        if (result.mle_iterations >= options.max_mle_iterations) {
+          result.status = FitStatus::iteration_limit;
+          result.message = "L-BFGS reached its limit of " + std::to_string(options.max_mle_iterations) +
+                           " iterations before converging";
+        }
+        break;
+      } catch (const std::exception& error) {
+        result.mle_iterations += 1;
+        theta = objective.best_theta;
+        const bool gained = objective.best < best_before - 1e-12 * std::abs(best_before);
+        if (gained && attempt < 20 && result.mle_iterations < options.max_mle_iterations) continue;
+        Eigen::VectorXd gradient;
+        objective(theta, gradient);
+        if (gradient.cwiseAbs().maxCoeff() > 1e3 * options.gradient_tolerance) {
+          result.status = FitStatus::stalled;
+          result.message = std::string("L-BFGS stopped early (") + error.what() + ")";
+        }
+        break;
       }
-    } catch (const std::exception& error) {
-      // LBFGSpp throws when its line search cannot progress; near the optimum that is the limit of
-      // the numerical gradient's precision, elsewhere a real stall.
-      Eigen::VectorXd gradient;
-      objective(objective.best_theta, gradient);
-      Eigen::VectorXd projected = gradient;
-      for (Eigen::Index i = 0; i < gradient.size(); ++i)
-        if ((objective.best_theta(i) <= lower(i) && gradient(i) > 0) || (objective.best_theta(i) >= upper(i) && gradient(i) < 0))
-          projected(i) = 0.0;
-      if (projected.cwiseAbs().maxCoeff() > 1e3 * options.gradient_tolerance) {
-        result.status = FitStatus::stalled;
-        result.message = std::string("L-BFGS-B stopped early (") + error.what() + ")";
-      }
-      result.mle_iterations = std::max(result.mle_iterations, 1);
     }
     if (objective.best < kInvalidObjective) theta = objective.best_theta;
     values = to_natural(spec, theta);
     log_likelihood = evaluator.log_likelihood(values);
   }
 
-  // Variances that went to zero are set to exactly zero (when the model still works there).
+  // A variance heading for zero creeps there (the log-likelihood is flat on the log scale): one
+  // small against its data scale whose removal costs next to no log-likelihood went to zero, and is
+  // set to exactly zero when the model still works there.
   std::vector<bool> active(spec.size(), true);
   for (std::size_t p = 0; p < spec.size(); ++p) {
     if (spec.parameters[p].kind != ParameterKind::variance) continue;
-    if (values(static_cast<Eigen::Index>(p)) < kZeroVarianceShare * scales[p]) {
+    const double value = values(static_cast<Eigen::Index>(p));
+    if (value < kSmallVarianceShare * scales[p]) {
       Eigen::VectorXd zeroed = values;
       zeroed(static_cast<Eigen::Index>(p)) = 0.0;
       const double at_zero = evaluator.log_likelihood(zeroed);
-      if (!std::isnan(at_zero) && at_zero >= log_likelihood - 1e-6 * (1.0 + std::abs(log_likelihood))) {
+      const bool negligible = !std::isnan(at_zero) && at_zero >= log_likelihood - kNegligibleLogLikelihood;
+      if (!negligible && value >= kZeroVarianceShare * scales[p]) continue;
+      if (negligible) {
         values = zeroed;
-        log_likelihood = at_zero;
+        log_likelihood = std::max(log_likelihood, at_zero);
       }
       active[p] = false;
       result.warnings.push_back(spec.parameters[p].name +
