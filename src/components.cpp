@@ -437,9 +437,10 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     for (std::size_t j = 0; j < used.size(); ++j) block.B[0][used[j]] = beta[j];
     block.loading = {1.0};
   } else {
-    context.fail(key_of(index, "type"), "unknown component \"" + type + "\"" + did_you_mean(type, kComponentTypes) +
-                                            "; expected one of level, trend, seasonal, ar, constant_velocity, "
-                                            "constant_acceleration, bias, regression");
+    context.fail(key_of(index, "type"), "unknown component \"" + type +
+                                            "\"; expected one of level, trend, seasonal, ar, constant_velocity, "
+                                            "constant_acceleration, bias, regression" +
+                                            did_you_mean(type, kComponentTypes));
   }
   if (block.channels.empty()) block.channels = fed_channels(context, component, index, observations);
   if (block.B.empty()) block.B = zeros(block.states.size(), p);

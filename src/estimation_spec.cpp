@@ -390,9 +390,17 @@ ModelTemplate parse_model_template(std::string_view json_text, const std::string
     return root.contains(key) && root[key].is_array() ? static_cast<Eigen::Index>(root[key].size()) : 0;
   };
   const Eigen::Index m = count("observations"), p = count("inputs");
-  const Eigen::Index n = root.contains("states") ? count("states")
-                         : root.contains("A")    ? detail::matrix_rows(context, root["A"], "A")
-                                                 : 0;
+  auto sized = [&](const char* key) { return root.contains(key) && (root[key].is_array() || root[key].is_number()); };
+  Eigen::Index n = 0;
+  if (root.contains("states"))
+    n = count("states");
+  else if (sized("A"))
+    n = detail::matrix_rows(context, root["A"], "A");
+  else if (sized("Q"))
+    n = detail::matrix_rows(context, root["Q"], "Q");
+  else if (root.contains("A"))
+    context.fail("states", "missing; with A and Q marked \"estimate\" as a whole, list the states so that the "
+                          "model's size is known");
   TemplateBuilder builder(context, result, component_parameters);
   const std::pair<const char*, ModelMatrix> matrices[] = {
       {"A", ModelMatrix::A}, {"B", ModelMatrix::B}, {"C", ModelMatrix::C}, {"Q", ModelMatrix::Q}, {"R", ModelMatrix::R}};

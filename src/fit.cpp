@@ -77,7 +77,7 @@ std::vector<double> channel_scales(const ObservationSeries& series) {
   return scales;
 }
 
-// The data scale of each parameter (used for starting values, bounds and "went to zero").
+// The data scale of each parameter (used for starting values and "went to zero").
 std::vector<double> parameter_scales(const EstimationSpec& spec, const ObservationSeries& series) {
   const std::vector<double> channel = channel_scales(series);
   double mean_scale = 0.0;
@@ -837,7 +837,7 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
         if (gained && attempt < 20 && result.mle_iterations < options.max_mle_iterations) continue;
         Eigen::VectorXd gradient;
         objective(theta, gradient);
-        if (gradient.cwiseAbs().maxCoeff() > 1e3 * options.gradient_tolerance) {
+        if (gradient.norm() > 1e3 * options.gradient_tolerance) {
           result.status = FitStatus::stalled;
           result.message = std::string("L-BFGS stopped early (") + error.what() + ")";
         }

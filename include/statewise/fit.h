@@ -7,7 +7,7 @@
 ///     missing values and constrained matrices handled as in E. E. Holmes, Derivation of an EM
 ///     algorithm for constrained and unconstrained multivariate autoregressive state-space (MARSS)
 ///     models (2012);
-///   - direct maximization of the exact (diffuse) log-likelihood with L-BFGS-B (LBFGSpp), variances
+///   - direct maximization of the exact (diffuse) log-likelihood with L-BFGS (LBFGSpp), variances
 ///     on the log scale and whole covariance matrices through their Cholesky factor.
 /// Standard errors come from the observed information, a numerical Hessian of the log-likelihood.
 /// The equations are in docs/algorithms.md. Numerical trouble is returned in FitResult::status,
@@ -26,20 +26,20 @@ namespace statewise {
 /// Which estimator to run.
 enum class FitMethod {
   em,    ///< EM only (refused when some parameter has no closed-form EM update)
-  mle,   ///< L-BFGS-B on the log-likelihood, after FitOptions::em_steps EM steps when EM applies
-  automatic,  ///< EM steps, then L-BFGS-B to finish; L-BFGS-B alone when EM does not apply
+  mle,   ///< L-BFGS on the log-likelihood, after FitOptions::em_steps EM steps when EM applies
+  automatic,  ///< EM steps, then L-BFGS to finish; L-BFGS alone when EM does not apply
 };
 
 /// Settings of fit_model. The defaults suit logs of a few hundred to a few hundred thousand rows.
 struct FitOptions {
   FitMethod method = FitMethod::automatic;
-  int em_steps = 10;              ///< EM steps before L-BFGS-B (mle: only when given; automatic: default 10)
+  int em_steps = 10;              ///< EM steps before L-BFGS for mle and automatic, when EM applies (0 = none)
   int max_em_iterations = 2000;   ///< limit for method em
-  int max_mle_iterations = 500;   ///< L-BFGS-B iterations
+  int max_mle_iterations = 500;   ///< L-BFGS iterations
   /// EM stops when one step raises the log-likelihood by less than em_tolerance × (1 + |log L|).
   double em_tolerance = 1e-10;
-  /// L-BFGS-B stops when the largest projected gradient of -log L / (number of values), on the
-  /// search scale, is below this.
+  /// L-BFGS stops when the norm of the gradient of -log L / (number of values), on the search
+  /// scale, is below this (or when 3 iterations gain less than 1e-13 relative).
   double gradient_tolerance = 1e-7;
   bool standard_errors = true;    ///< compute the numerical Hessian
   bool keep_em_trace = false;     ///< record the log-likelihood before every EM step (FitResult::em_trace)
@@ -80,7 +80,7 @@ struct FitResult {
   double bic = 0.0;                          ///< -2 log L + (k + q) log N
   std::string method;                        ///< "em", "mle" or "em+mle": what actually ran
   int em_iterations = 0;                     ///< EM steps taken
-  int mle_iterations = 0;                    ///< L-BFGS-B iterations taken
+  int mle_iterations = 0;                    ///< L-BFGS iterations taken
   std::vector<double> em_trace;              ///< log L before each EM step and after the last (when asked)
   std::vector<std::string> warnings;         ///< plain sentences
 };

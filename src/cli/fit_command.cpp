@@ -62,7 +62,7 @@ void print_summary(const FittedModel& fitted) {
   std::ostringstream text;
   text << "statewise: fit " << fitted.path << ": " << status_name(r.status) << " (" << r.method;
   if (r.em_iterations > 0) text << ", " << r.em_iterations << " EM steps";
-  if (r.mle_iterations > 0) text << ", " << r.mle_iterations << " L-BFGS-B iterations";
+  if (r.mle_iterations > 0) text << ", " << r.mle_iterations << " L-BFGS iterations";
   text << "); log-likelihood " << format_number(r.log_likelihood, 10) << ", AIC " << format_number(r.aic, 10)
        << ", BIC " << format_number(r.bic, 10) << "\n";
   for (const auto& e : r.estimates) {

@@ -45,12 +45,12 @@ void add_fit_options(CLI::App& command, statewise::cli::FitCommandOptions& optio
   command.add_option("-o,--output", options.output_path, "Where to write the fitted model file; - for standard output")
       ->capture_default_str();
   command.add_option("--report", options.report_path, "Write a JSON report of the fit to this file");
-  command.add_option("--method", options.method, "em, mle (L-BFGS-B) or auto (EM steps, then L-BFGS-B)")
+  command.add_option("--method", options.method, "em, mle (L-BFGS) or auto (EM steps, then L-BFGS)")
       ->capture_default_str();
-  command.add_option("--em-steps", options.em_steps, "EM steps before L-BFGS-B (auto: 10, mle: 0)")
+  command.add_option("--em-steps", options.em_steps, "EM steps before L-BFGS (auto: 10, mle: 0)")
       ->check(CLI::Range(0, 100000));
   command.add_option("--max-iterations", options.max_iterations,
-                     "Iteration limit (EM for --method em, L-BFGS-B otherwise; defaults 2000 and 500)")
+                     "Iteration limit (EM for --method em, L-BFGS otherwise; defaults 2000 and 500)")
       ->check(CLI::Range(1, 1000000));
   command.add_flag("--compare", options.compare, "Rank the models by AIC and BIC in a table on standard output");
   command.add_option("--delimiter", options.delimiter, "Field separator of the input: one character, or tab")

@@ -176,8 +176,14 @@ bool is_estimate_marker(const json& value) {
 }
 
 void reject_estimate_marker(const JsonContext& context, const json& value, const std::string& key) {
-  if (is_estimate_marker(value))
-    context.fail(key, "is marked \"estimate\"; estimate it first with `statewise fit -m " + context.file_name +
+  if (!is_estimate_marker(value)) return;
+  // A component's marker is named by its key path; name that, not the entry it expanded into.
+  std::string place = key;
+  if (value.is_object() && value.contains("parameter") && value["parameter"].is_string()) {
+    const std::string parameter = value["parameter"].get<std::string>();
+    place = parameter.rfind("components[", 0) == 0 ? parameter : key + " (parameter \"" + parameter + "\")";
+  }
+  context.fail(place, "is marked \"estimate\"; estimate it first with `statewise fit -m " + context.file_name +
                           " data.csv -o fitted.json` and use the fitted model file");
 }
 
