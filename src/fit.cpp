@@ -788,7 +788,7 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
       result.message = "EM reached its limit of " + std::to_string(em_budget) + " iterations before converging";
     }
   }
-  result.method = result.em_iterations > 0 ? "em" : "";
+  result.method = spec.size() == 0 ? "none" : result.em_iterations > 0 ? "em" : "";
 
   // L-BFGS.
   if (options.method != FitMethod::em && spec.size() > 0) {

@@ -61,6 +61,29 @@ TEST_CASE("Nile local level: maximum-likelihood variances of Durbin and Koopman 
   }
 }
 
+TEST_CASE("Nile: maximum, log-likelihood and standard errors against an independent computation") {
+  // Reference: the diffuse local level log-likelihood written out directly in Python and maximized
+  // with scipy 1.10.1 / numpy 1.24.2 (Debian):
+  //   scipy.optimize.minimize(-loglik(exp(th)), method="Nelder-Mead", xatol=1e-12, fatol=1e-14)
+  // gives q = 1469.1765247913158, r = 15098.51852520084, log L_d = -633.4645636362452; the standard
+  // errors sqrt(diag(inv(-H))), H the central-difference Hessian in (q, r) with steps 0.125% of the
+  // values, are 1280.37069176294 and 3145.5299380269307 (halving the step changes them by 1e-5).
+  const ModelTemplate model = parse_model_template(kNileModel, "nile.json");
+  const ObservationSeries series = read_file(STATEWISE_TEST_DATA_DIR "/nile.csv", model.model);
+  FitOptions options;
+  options.method = FitMethod::mle;
+  options.em_steps = 0;
+  const FitResult fit = fit_model(model, series, options);
+  REQUIRE(fit.status == FitStatus::converged);
+  CHECK(fit.log_likelihood == doctest::Approx(-633.4645636362452).epsilon(1e-9));
+  // The likelihood is flat near its top: a 1e-9 relative change in log L moves q by about 1e-4.
+  CHECK(fit.estimates[0].value == doctest::Approx(1469.1765247913158).epsilon(2e-4));
+  CHECK(fit.estimates[1].value == doctest::Approx(15098.51852520084).epsilon(2e-4));
+  // Both are numerical second differences: agree to a few parts in 1e4 at best.
+  CHECK(fit.estimates[0].standard_error == doctest::Approx(1280.37069176294).epsilon(2e-3));
+  CHECK(fit.estimates[1].standard_error == doctest::Approx(3145.5299380269307).epsilon(2e-3));
+}
+
 TEST_CASE("Nile: a far-off starting value still reaches the maximum") {
   // The same published values as above (Durbin and Koopman 2012, section 2.10), starting a
   // million times too high and a million times too low.

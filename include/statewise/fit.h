@@ -78,7 +78,7 @@ struct FitResult {
   std::size_t observed_values = 0;           ///< non-missing values, N
   double aic = 0.0;                          ///< -2 log L + 2 (k + q)
   double bic = 0.0;                          ///< -2 log L + (k + q) log N
-  std::string method;                        ///< "em", "mle" or "em+mle": what actually ran
+  std::string method;                        ///< "em", "mle" or "em+mle": what actually ran ("none" with nothing to estimate)
   int em_iterations = 0;                     ///< EM steps taken
   int mle_iterations = 0;                    ///< L-BFGS iterations taken
   std::vector<double> em_trace;              ///< log L before each EM step and after the last (when asked)
