@@ -15,17 +15,15 @@ namespace {
 using detail::JsonContext;
 using nlohmann::json;
 
-const std::vector<std::string> kComponentTypes = {"level",           "trend",
-                                                  "seasonal",        "ar",
-                                                  "constant_velocity", "constant_acceleration",
-                                                  "bias",            "regression"};
+const std::vector<std::string> kComponentTypes = {
+    "level", "trend", "seasonal", "ar", "constant_velocity", "constant_acceleration", "bias", "regression"};
 
 // A number, or a parameter to estimate (its key path names it).
 struct Value {
   double number = 0.0;
   bool estimate = false;
-  json start;          // the marker's "start", or null
-  std::string name;    // key path of the field, for estimated values
+  json start;        // the marker's "start", or null
+  std::string name;  // key path of the field, for estimated values
 };
 
 // One component's contribution, in its own small coordinates.
@@ -70,16 +68,16 @@ Value read_value(const JsonContext& context, const json& value, const std::strin
   return number_value(number);
 }
 
-Value required_value(const JsonContext& context, const json& component, std::size_t index, const std::string& field,
-                     bool variance) {
+Value required_value(const JsonContext& context, const json& component, std::size_t index,
+                     const std::string& field, bool variance) {
   if (!component.contains(field))
-    context.fail(key_of(index, field), std::string("missing; expected a ") + (variance ? "variance" : "number") +
-                                           " or \"estimate\"");
+    context.fail(key_of(index, field), std::string("missing; expected a ") +
+                                           (variance ? "variance" : "number") + " or \"estimate\"");
   return read_value(context, component[field], key_of(index, field), variance);
 }
 
-double optional_number(const JsonContext& context, const json& component, std::size_t index, const std::string& field,
-                       double fallback) {
+double optional_number(const JsonContext& context, const json& component, std::size_t index,
+                       const std::string& field, double fallback) {
   if (!component.contains(field)) return fallback;
   return detail::parse_number(context, component[field], key_of(index, field));
 }
@@ -95,7 +93,8 @@ std::string optional_text(const JsonContext& context, const json& component, std
     if (text == option) return text;
   std::string expected;
   for (const auto& option : allowed) expected += (expected.empty() ? "\"" : " or \"") + option + "\"";
-  context.fail(key_of(index, field), "expected " + expected + ", got \"" + text + "\"" + did_you_mean(text, allowed));
+  context.fail(key_of(index, field),
+               "expected " + expected + ", got \"" + text + "\"" + did_you_mean(text, allowed));
 }
 
 int positive_integer(const JsonContext& context, const json& value, const std::string& key, int minimum) {
@@ -142,7 +141,8 @@ std::vector<bool> fed_channels(const JsonContext& context, const json& component
     context.fail(key, "expected a list of observed channel names, got " + detail::describe(list));
   for (std::size_t i = 0; i < list.size(); ++i) {
     const std::string item_key = key + "[" + std::to_string(i) + "]";
-    if (!list[i].is_string()) context.fail(item_key, "expected a channel name, got " + detail::describe(list[i]));
+    if (!list[i].is_string())
+      context.fail(item_key, "expected a channel name, got " + detail::describe(list[i]));
     const std::string name = list[i].get<std::string>();
     bool found = false;
     for (std::size_t c = 0; c < observations.size(); ++c)
@@ -151,7 +151,8 @@ std::vector<bool> fed_channels(const JsonContext& context, const json& component
         found = true;
       }
     if (!found)
-      context.fail(item_key, "\"" + name + "\" is not one of the observations" + did_you_mean(name, observations));
+      context.fail(item_key,
+                   "\"" + name + "\" is not one of the observations" + did_you_mean(name, observations));
   }
   return fed;
 }
@@ -159,7 +160,8 @@ std::vector<bool> fed_channels(const JsonContext& context, const json& component
 std::vector<std::string> read_names(const JsonContext& context, const json& root, const std::string& key) {
   std::vector<std::string> names;
   if (!root.contains(key)) return names;
-  if (!root[key].is_array()) context.fail(key, "expected a list of names, got " + detail::describe(root[key]));
+  if (!root[key].is_array())
+    context.fail(key, "expected a list of names, got " + detail::describe(root[key]));
   for (const auto& item : root[key])
     if (item.is_string()) names.push_back(item.get<std::string>());
   return names;
@@ -171,7 +173,8 @@ std::vector<Value> read_coefficients(const JsonContext& context, const json& com
                                      std::size_t expected_count, bool count_known,
                                      std::vector<detail::ComponentParameterOrigin>& origins) {
   const std::string key = key_of(index, "coefficients");
-  if (!component.contains("coefficients")) context.fail(key, "missing; expected a list of numbers or \"estimate\"");
+  if (!component.contains("coefficients"))
+    context.fail(key, "missing; expected a list of numbers or \"estimate\"");
   const json& value = component["coefficients"];
   std::vector<Value> coefficients;
   detail::ComponentParameterOrigin origin;
@@ -196,14 +199,14 @@ std::vector<Value> read_coefficients(const JsonContext& context, const json& com
   for (std::size_t i = 0; i < value.size(); ++i) {
     const std::string item_key = key + "[" + std::to_string(i) + "]";
     Value v = read_value(context, value[i], item_key, false);
-    if (v.estimate)
-      origins.push_back({origin.pointer + "/" + std::to_string(i), {v.name}, false});
+    if (v.estimate) origins.push_back({origin.pointer + "/" + std::to_string(i), {v.name}, false});
     coefficients.push_back(v);
   }
   return coefficients;
 }
 
-void note_origin(const Value& value, const std::string& pointer, std::vector<detail::ComponentParameterOrigin>& origins) {
+void note_origin(const Value& value, const std::string& pointer,
+                 std::vector<detail::ComponentParameterOrigin>& origins) {
   if (value.estimate) origins.push_back({pointer, {value.name}, false});
 }
 
@@ -215,14 +218,16 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     context.fail(key, "expected an object such as {\"type\": \"level\", \"variance\": \"estimate\"}, got " +
                           detail::describe(component));
   if (!component.contains("type") || !component["type"].is_string())
-    context.fail(key_of(index, "type"), "missing; expected one of level, trend, seasonal, ar, constant_velocity, "
-                                        "constant_acceleration, bias, regression");
+    context.fail(key_of(index, "type"),
+                 "missing; expected one of level, trend, seasonal, ar, constant_velocity, "
+                 "constant_acceleration, bias, regression");
   const std::string type = component["type"].get<std::string>();
   const std::string pointer = "/components/" + std::to_string(index) + "/";
   std::string name;
   if (component.contains("name")) {
     if (!component["name"].is_string() || component["name"].get<std::string>().empty())
-      context.fail(key_of(index, "name"), "expected a non-empty name, got " + detail::describe(component["name"]));
+      context.fail(key_of(index, "name"),
+                   "expected a non-empty name, got " + detail::describe(component["name"]));
     name = component["name"].get<std::string>();
   }
   auto field = [&](const std::string& f, bool variance) {
@@ -253,14 +258,17 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
   } else if (type == "seasonal") {
     detail::reject_unknown_keys(context, component, key,
                                 {"type", "name", "channels", "period", "form", "harmonics", "variance"});
-    if (!component.contains("period")) context.fail(key_of(index, "period"), "missing; expected the number of rows in one season cycle");
+    if (!component.contains("period"))
+      context.fail(key_of(index, "period"), "missing; expected the number of rows in one season cycle");
     const int period = positive_integer(context, component["period"], key_of(index, "period"), 2);
-    const std::string form = optional_text(context, component, index, "form", "dummy", {"dummy", "trigonometric"});
+    const std::string form =
+        optional_text(context, component, index, "form", "dummy", {"dummy", "trigonometric"});
     const Value variance = field("variance", true);
     const std::string prefix = name.empty() ? "season" : name;
     if (form == "dummy") {
       if (component.contains("harmonics"))
-        context.fail(key_of(index, "harmonics"), "applies to the trigonometric form only; remove it or set \"form\": \"trigonometric\"");
+        context.fail(key_of(index, "harmonics"),
+                     "applies to the trigonometric form only; remove it or set \"form\": \"trigonometric\"");
       // Dummy-variable seasonal (Durbin and Koopman 2012, section 3.2.2):
       // gamma_t = -(gamma_{t-1} + ... + gamma_{t-s+1}) + omega_t.
       const std::size_t k = static_cast<std::size_t>(period - 1);
@@ -327,9 +335,9 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     // Autoregression of order p in companion form (Durbin and Koopman 2012, section 3.4):
     // state (a_t, a_{t-1}, ..., a_{t-p+1}), a_t = phi_1 a_{t-1} + ... + phi_p a_{t-p} + e_t.
     const bool order_given = component.contains("order");
-    const std::size_t order =
-        order_given ? static_cast<std::size_t>(positive_integer(context, component["order"], key_of(index, "order"), 1))
-                    : 0;
+    const std::size_t order = order_given ? static_cast<std::size_t>(positive_integer(
+                                                context, component["order"], key_of(index, "order"), 1))
+                                          : 0;
     const std::vector<Value> phi = read_coefficients(context, component, index, order, order_given, origins);
     const std::size_t k = phi.size();
     std::vector<std::string> parts;
@@ -345,10 +353,12 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     block.loading.assign(k, 0.0);
     block.loading[0] = 1.0;
   } else if (type == "constant_velocity" || type == "constant_acceleration") {
-    detail::reject_unknown_keys(context, component, key, {"type", "name", "channels", "form", "dt", "variance"});
+    detail::reject_unknown_keys(context, component, key,
+                                {"type", "name", "channels", "form", "dt", "variance"});
     const double T = optional_number(context, component, index, "dt", 1.0);
     if (!(T > 0.0)) context.fail(key_of(index, "dt"), "expected a positive time between rows");
-    const std::string form = optional_text(context, component, index, "form", "continuous", {"continuous", "discrete"});
+    const std::string form =
+        optional_text(context, component, index, "form", "continuous", {"continuous", "discrete"});
     const Value variance = field("variance", true);
     // Bar-Shalom, Li and Kirubarajan, Estimation with Applications to Tracking and Navigation (2001):
     // continuous white-noise acceleration (6.2.2) / jerk (6.2.3) integrated over T, or a discrete
@@ -371,7 +381,8 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
         const double g[3] = {T * T / 2, T, 1.0};
         shape.assign(3, std::vector<double>(3));
         for (int i = 0; i < 3; ++i)
-          for (int j = 0; j < 3; ++j) shape[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)] = g[i] * g[j];
+          for (int j = 0; j < 3; ++j)
+            shape[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)] = g[i] * g[j];
       }
     }
     const std::size_t k = a.size();
@@ -383,17 +394,19 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     block.loading.assign(k, 0.0);
     block.loading[0] = 1.0;
   } else if (type == "bias") {
-    detail::reject_unknown_keys(context, component, key, {"type", "name", "channel", "variance", "persistence"});
+    detail::reject_unknown_keys(context, component, key,
+                                {"type", "name", "channel", "variance", "persistence"});
     if (!component.contains("channel") || !component["channel"].is_string())
-      context.fail(key_of(index, "channel"), "missing; expected the name of the observed channel the offset is added to");
+      context.fail(key_of(index, "channel"),
+                   "missing; expected the name of the observed channel the offset is added to");
     const std::string channel = component["channel"].get<std::string>();
     block.channels.assign(observations.size(), false);
     bool found = false;
     for (std::size_t c = 0; c < observations.size(); ++c)
       if (observations[c] == channel) block.channels[c] = found = true;
     if (!found)
-      context.fail(key_of(index, "channel"),
-                   "\"" + channel + "\" is not one of the observations" + did_you_mean(channel, observations));
+      context.fail(key_of(index, "channel"), "\"" + channel + "\" is not one of the observations" +
+                                                 did_you_mean(channel, observations));
     block.states = {name.empty() ? "bias_" + channel : name};
     // A drifting offset: b_t = rho b_{t-1} + w_t (a random walk when rho = 1).
     Value persistence = number_value(1.0);
@@ -406,23 +419,27 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     scale_into(block.Q, {{1.0}}, field("variance", true), 0);
     block.loading = {1.0};
   } else if (type == "regression") {
-    detail::reject_unknown_keys(context, component, key, {"type", "name", "channels", "inputs", "coefficients"});
+    detail::reject_unknown_keys(context, component, key,
+                                {"type", "name", "channels", "inputs", "coefficients"});
     // An input effect r_t = beta' u_{t-1}: like every input in statewise it enters through B, so a
     // row sees the inputs logged on the row before (docs/model-format.md).
     std::vector<std::size_t> used;
     if (component.contains("inputs")) {
       const json& list = component["inputs"];
       if (!list.is_array() || list.empty())
-        context.fail(key_of(index, "inputs"), "expected a list of input column names, got " + detail::describe(list));
+        context.fail(key_of(index, "inputs"),
+                     "expected a list of input column names, got " + detail::describe(list));
       for (std::size_t i = 0; i < list.size(); ++i) {
         const std::string item_key = key_of(index, "inputs[" + std::to_string(i) + "]");
-        if (!list[i].is_string()) context.fail(item_key, "expected an input name, got " + detail::describe(list[i]));
+        if (!list[i].is_string())
+          context.fail(item_key, "expected an input name, got " + detail::describe(list[i]));
         const std::string input = list[i].get<std::string>();
         std::size_t found = p;
         for (std::size_t j = 0; j < p; ++j)
           if (inputs[j] == input) found = j;
         if (found == p)
-          context.fail(item_key, "\"" + input + "\" is not one of the model's \"inputs\"" + did_you_mean(input, inputs));
+          context.fail(item_key, "\"" + input + "\" is not one of the model's \"inputs\"" +
+                                     did_you_mean(input, inputs));
         used.push_back(found);
       }
     } else {
@@ -437,10 +454,11 @@ Block expand_one(const JsonContext& context, const json& component, std::size_t 
     for (std::size_t j = 0; j < used.size(); ++j) block.B[0][used[j]] = beta[j];
     block.loading = {1.0};
   } else {
-    context.fail(key_of(index, "type"), "unknown component \"" + type +
-                                            "\"; expected one of level, trend, seasonal, ar, constant_velocity, "
-                                            "constant_acceleration, bias, regression" +
-                                            did_you_mean(type, kComponentTypes));
+    context.fail(key_of(index, "type"),
+                 "unknown component \"" + type +
+                     "\"; expected one of level, trend, seasonal, ar, constant_velocity, "
+                     "constant_acceleration, bias, regression" +
+                     did_you_mean(type, kComponentTypes));
   }
   if (block.channels.empty()) block.channels = fed_channels(context, component, index, observations);
   if (block.B.empty()) block.B = zeros(block.states.size(), p);
@@ -462,8 +480,10 @@ namespace detail {
 ExpandedComponents expand_components(const JsonContext& context, const json& root) {
   const json& list = root["components"];
   if (!list.is_array() || list.empty())
-    context.fail("components", "expected a list of building blocks such as [{\"type\": \"level\", \"variance\": "
-                               "\"estimate\"}], got " + describe(list));
+    context.fail("components",
+                 "expected a list of building blocks such as [{\"type\": \"level\", \"variance\": "
+                 "\"estimate\"}], got " +
+                     describe(list));
   for (const char* key : {"states", "A", "B", "C", "Q"})
     if (root.contains(key))
       context.fail(key, std::string("given together with \"components\", which build ") +
@@ -533,12 +553,13 @@ ExpandedComponents expand_components(const JsonContext& context, const json& roo
 std::string expand_model_text(std::string_view json_text, const std::string& file_name) {
   json root = detail::parse_json_document(json_text, file_name);
   const JsonContext context{file_name};
-  if (!root.is_object()) context.fail("", "expected a JSON object with the model's keys, got " + detail::describe(root));
+  if (!root.is_object())
+    context.fail("", "expected a JSON object with the model's keys, got " + detail::describe(root));
   if (root.contains("components")) root = detail::expand_components(context, root).root;
   // The usual key order; keys this version does not know (added by newer formats) follow.
   detail::OrderedJson out = detail::OrderedJson::object();
-  for (const char* key : {"version", "description", "states", "observations", "inputs", "time", "A", "B", "C", "Q",
-                          "R", "initial"})
+  for (const char* key : {"version", "description", "states", "observations", "inputs", "time", "A", "B", "C",
+                          "Q", "R", "initial"})
     if (root.contains(key)) out[key] = detail::OrderedJson::parse(root[key].dump());
   for (auto it = root.begin(); it != root.end(); ++it)
     if (!out.contains(it.key())) out[it.key()] = detail::OrderedJson::parse(it.value().dump());

@@ -1,9 +1,8 @@
 #include "statewise/diffuse.h"
 
+#include <Eigen/Cholesky>
 #include <cmath>
 #include <numbers>
-
-#include <Eigen/Cholesky>
 
 #include "detail/model_json.h"
 #include "statewise/error.h"
@@ -50,7 +49,8 @@ StateSpaceModel augmented_with_previous(const StateSpaceModel& model) {
   big.initial_covariance.topLeftCorner(n, n) = model.initial_covariance;
   if (model.has_diffuse_states()) {
     big.diffuse.assign(static_cast<std::size_t>(2 * n), false);
-    for (Eigen::Index i = 0; i < n; ++i) big.diffuse[static_cast<std::size_t>(i)] = model.diffuse[static_cast<std::size_t>(i)];
+    for (Eigen::Index i = 0; i < n; ++i)
+      big.diffuse[static_cast<std::size_t>(i)] = model.diffuse[static_cast<std::size_t>(i)];
   }
   return big;
 }
@@ -65,9 +65,9 @@ Eigen::MatrixXd initial_diffuse_covariance(const StateSpaceModel& model) {
   return diffuse;
 }
 
-UnivariateRowResult univariate_update(const StateSpaceModel& model, const double* values, Eigen::VectorXd& mean,
-                                      Eigen::MatrixXd& covariance, Eigen::MatrixXd* diffuse,
-                                      std::vector<ScalarUpdate>* updates) {
+UnivariateRowResult univariate_update(const StateSpaceModel& model, const double* values,
+                                      Eigen::VectorXd& mean, Eigen::MatrixXd& covariance,
+                                      Eigen::MatrixXd* diffuse, std::vector<ScalarUpdate>* updates) {
   UnivariateRowResult result;
   const int m = model.channel_count();
   std::vector<int> observed;
@@ -127,7 +127,8 @@ UnivariateRowResult univariate_update(const StateSpaceModel& model, const double
       ++result.diffuse_values;
     } else {
       if (!(F_star > 0.0) || !std::isfinite(F_star)) {
-        result.status = std::isfinite(F_star) ? StepStatus::singular_innovation_covariance : StepStatus::not_finite;
+        result.status =
+            std::isfinite(F_star) ? StepStatus::singular_innovation_covariance : StepStatus::not_finite;
         return result;
       }
       // Ordinary update of one value: K = M_* / F_*, a += K v, P_* -= M_* M_*' / F_*.
@@ -158,7 +159,7 @@ namespace {
 // The forward pass, keeping what the smoother needs when `keep` is true.
 struct ForwardPass {
   SeriesLikelihood likelihood;
-  std::vector<Eigen::VectorXd> predicted_mean;       // a_t
+  std::vector<Eigen::VectorXd> predicted_mean;        // a_t
   std::vector<Eigen::MatrixXd> predicted_covariance;  // P_*,t
   std::vector<Eigen::MatrixXd> predicted_diffuse;     // P_inf,t for t < diffuse_rows
   std::vector<std::vector<ScalarUpdate>> updates;     // per row
@@ -180,7 +181,8 @@ ForwardPass forward(const StateSpaceModel& model, const ObservationSeries& serie
   }
   for (std::size_t t = 0; t < rows; ++t) {
     if (t > 0) {
-      predict_moments(transition, mean, covariance, series.row_inputs(t - 1), predicted_mean, predicted, workspace);
+      predict_moments(transition, mean, covariance, series.row_inputs(t - 1), predicted_mean, predicted,
+                      workspace);
       mean.swap(predicted_mean);
       covariance.swap(predicted);
       if (in_diffuse_phase) {
@@ -196,9 +198,9 @@ ForwardPass forward(const StateSpaceModel& model, const ObservationSeries& serie
     const double* values = series.row_values(t);
     for (int c = 0; c < series.channels; ++c)
       if (!std::isnan(values[c])) ++pass.likelihood.observed_values;
-    const UnivariateRowResult row = univariate_update(model, values, mean, covariance,
-                                                      in_diffuse_phase ? &diffuse : nullptr,
-                                                      keep ? &pass.updates[t] : nullptr);
+    const UnivariateRowResult row =
+        univariate_update(model, values, mean, covariance, in_diffuse_phase ? &diffuse : nullptr,
+                          keep ? &pass.updates[t] : nullptr);
     if (row.status != StepStatus::ok) {
       pass.likelihood.status = row.status;
       pass.likelihood.row = t;
@@ -224,7 +226,8 @@ SeriesLikelihood exact_log_likelihood(const StateSpaceModel& model, const Observ
   return forward(model, series, false).likelihood;
 }
 
-ExactSmoothing exact_smooth(const StateSpaceModel& model, const ObservationSeries& series, bool with_lag_one) {
+ExactSmoothing exact_smooth(const StateSpaceModel& model, const ObservationSeries& series,
+                            bool with_lag_one) {
   const StateSpaceModel big = with_lag_one ? augmented_with_previous(model) : StateSpaceModel{};
   const StateSpaceModel& run = with_lag_one ? big : model;
   ForwardPass pass = forward(run, series, true);

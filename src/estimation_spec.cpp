@@ -72,12 +72,14 @@ EntryMarker read_entry_marker(const JsonContext& context, const json& value, con
   if (value.is_string()) return marker;
   detail::reject_unknown_keys(context, value, key, {"estimate", "start", "parameter", "times"});
   if (!(value["estimate"].is_boolean() && value["estimate"].get<bool>()))
-    context.fail(key + ".estimate", "expected true for one entry, got " + detail::describe(value["estimate"]));
+    context.fail(key + ".estimate",
+                 "expected true for one entry, got " + detail::describe(value["estimate"]));
   if (value.contains("start")) marker.start = detail::parse_number(context, value["start"], key + ".start");
   if (value.contains("times")) marker.times = detail::parse_number(context, value["times"], key + ".times");
   if (value.contains("parameter")) {
     if (!value["parameter"].is_string() || value["parameter"].get<std::string>().empty())
-      context.fail(key + ".parameter", "expected a parameter name, got " + detail::describe(value["parameter"]));
+      context.fail(key + ".parameter",
+                   "expected a parameter name, got " + detail::describe(value["parameter"]));
     marker.link = value["parameter"].get<std::string>();
   }
   return marker;
@@ -85,12 +87,13 @@ EntryMarker read_entry_marker(const JsonContext& context, const json& value, con
 
 class TemplateBuilder {
  public:
-  TemplateBuilder(const JsonContext& context, ModelTemplate& result, const std::set<std::string>& component_parameters)
+  TemplateBuilder(const JsonContext& context, ModelTemplate& result,
+                  const std::set<std::string>& component_parameters)
       : context_(context), result_(result), component_parameters_(component_parameters) {}
 
   // Replaces markers in root[key] (a rows×cols matrix) by placeholders and records the parameters.
-  void process(json& value, const std::string& key, const std::string& pointer, ModelMatrix matrix, Eigen::Index rows,
-               Eigen::Index cols) {
+  void process(json& value, const std::string& key, const std::string& pointer, ModelMatrix matrix,
+               Eigen::Index rows, Eigen::Index cols) {
     const bool covariance = is_covariance(matrix);
     const bool vector = matrix == ModelMatrix::initial_mean;
     if (is_whole_marker(value)) {
@@ -98,8 +101,8 @@ class TemplateBuilder {
       return;
     }
     std::vector<EntryMarker> markers;
-    auto visit = [&](json& entry, const std::string& entry_key, const std::string& entry_pointer, Eigen::Index i,
-                     Eigen::Index j) {
+    auto visit = [&](json& entry, const std::string& entry_key, const std::string& entry_pointer,
+                     Eigen::Index i, Eigen::Index j) {
       if (!detail::is_estimate_marker(entry)) return;
       markers.push_back(read_entry_marker(context_, entry, entry_key, entry_pointer, i, j));
       entry = 0.0;  // placeholder, set below
@@ -115,22 +118,25 @@ class TemplateBuilder {
       for (std::size_t i = 0; i < value.size(); ++i) {
         if (!value[i].is_array()) continue;  // the matrix reader reports it
         for (std::size_t j = 0; j < value[i].size(); ++j)
-          visit(value[i][j], index_key(index_key(key, static_cast<Eigen::Index>(i)), static_cast<Eigen::Index>(j)),
+          visit(value[i][j],
+                index_key(index_key(key, static_cast<Eigen::Index>(i)), static_cast<Eigen::Index>(j)),
                 pointer + "/" + std::to_string(i) + "/" + std::to_string(j), static_cast<Eigen::Index>(i),
                 static_cast<Eigen::Index>(j));
       }
     }
     if (markers.empty()) return;
-    group(markers, value, key, pointer, matrix);
+    group(markers, value, key, matrix);
   }
 
  private:
   bool is_whole_marker(const json& value) const {
     if (value.is_string()) return value.get_ref<const std::string&>() == "estimate";
-    return value.is_object() && value.contains("estimate") && !value.contains("parameter") && !value.contains("times");
+    return value.is_object() && value.contains("estimate") && !value.contains("parameter") &&
+           !value.contains("times");
   }
 
-  int add_parameter(const std::string& name, ParameterKind kind, ModelMatrix matrix, std::optional<double> start) {
+  int add_parameter(const std::string& name, ParameterKind kind, ModelMatrix matrix,
+                    std::optional<double> start) {
     result_.spec.parameters.push_back(FreeParameter{name, kind, matrix, start});
     return static_cast<int>(result_.spec.parameters.size()) - 1;
   }
@@ -141,8 +147,8 @@ class TemplateBuilder {
     return matrix == ModelMatrix::C ? 1.0 : 0.0;
   }
 
-  void whole(json& value, const std::string& key, const std::string& pointer, ModelMatrix matrix, Eigen::Index rows,
-             Eigen::Index cols) {
+  void whole(json& value, const std::string& key, const std::string& pointer, ModelMatrix matrix,
+             Eigen::Index rows, Eigen::Index cols) {
     std::string structure = "full";
     json start = nullptr;
     if (value.is_object()) {
@@ -153,15 +159,17 @@ class TemplateBuilder {
       } else if (kind.is_string() && (kind == "full" || kind == "diagonal" || kind == "scalar")) {
         structure = kind.get<std::string>();
       } else {
-        context_.fail(key + ".estimate", "expected \"full\", \"diagonal\", \"scalar\" or true, got " +
-                                             detail::describe(kind));
+        context_.fail(key + ".estimate",
+                      "expected \"full\", \"diagonal\", \"scalar\" or true, got " + detail::describe(kind));
       }
       if (value.contains("start")) start = value["start"];
     }
     const bool covariance = is_covariance(matrix);
     if (!covariance && structure != "full")
-      context_.fail(key + ".estimate", "\"" + structure + "\" applies to the covariances Q and R only; write "
-                                           "\"estimate\" to estimate every entry of " + key);
+      context_.fail(key + ".estimate", "\"" + structure +
+                                           "\" applies to the covariances Q and R only; write "
+                                           "\"estimate\" to estimate every entry of " +
+                                           key);
     FittedValuePlace place;
     place.pointer = pointer;
     place.form = FittedValuePlace::Form::whole_matrix;
@@ -174,12 +182,13 @@ class TemplateBuilder {
       block.matrix = matrix;
       block.size = rows;
       if (!start.is_null())
-        block.start = detail::parse_matrix(context_, start, key + ".start", rows, rows, "a starting covariance");
+        block.start =
+            detail::parse_matrix(context_, start, key + ".start", rows, rows, "a starting covariance");
       numbers = block.start ? *block.start : Eigen::MatrixXd::Identity(rows, rows);
       for (Eigen::Index i = 0; i < rows; ++i)
         for (Eigen::Index j = 0; j <= i; ++j)
-          block.parameters.push_back(add_parameter(index_key(index_key(key, i), j), ParameterKind::full_covariance,
-                                                   matrix, std::nullopt));
+          block.parameters.push_back(add_parameter(index_key(index_key(key, i), j),
+                                                   ParameterKind::full_covariance, matrix, std::nullopt));
       result_.spec.full_blocks.push_back(block);
       place.layout = "rows";
     } else if (covariance) {
@@ -188,7 +197,8 @@ class TemplateBuilder {
         if (start.is_number())
           starts.setConstant(detail::parse_number(context_, start, key + ".start"));
         else
-          starts = detail::parse_vector(context_, start, key + ".start", rows, "one starting variance per row");
+          starts =
+              detail::parse_vector(context_, start, key + ".start", rows, "one starting variance per row");
         for (Eigen::Index i = 0; i < rows; ++i)
           if (!(starts(i) > 0.0)) context_.fail(key + ".start", "expected positive starting variances");
       }
@@ -197,12 +207,13 @@ class TemplateBuilder {
       };
       if (structure == "scalar") {
         const int parameter = add_parameter(key, ParameterKind::variance, matrix, start_of(0));
-        for (Eigen::Index i = 0; i < rows; ++i) result_.spec.entries.push_back({parameter, matrix, i, i, 1.0});
+        for (Eigen::Index i = 0; i < rows; ++i)
+          result_.spec.entries.push_back({parameter, matrix, i, i, 1.0});
         numbers.diagonal().setConstant(placeholder(ParameterKind::variance, matrix, start_of(0)));
       } else {
         for (Eigen::Index i = 0; i < rows; ++i) {
-          const int parameter = add_parameter(rows == 1 ? key : index_key(key, i), ParameterKind::variance, matrix,
-                                              start_of(i));
+          const int parameter = add_parameter(rows == 1 ? key : index_key(key, i), ParameterKind::variance,
+                                              matrix, start_of(i));
           result_.spec.entries.push_back({parameter, matrix, i, i, 1.0});
           numbers(i, i) = placeholder(ParameterKind::variance, matrix, start_of(i));
         }
@@ -212,11 +223,14 @@ class TemplateBuilder {
       const bool vector = matrix == ModelMatrix::initial_mean;
       Eigen::MatrixXd starts;
       if (!start.is_null())
-        starts = vector ? Eigen::MatrixXd(detail::parse_vector(context_, start, key + ".start", rows, "one value per state"))
-                        : detail::parse_matrix(context_, start, key + ".start", rows, cols, "starting values");
+        starts = vector
+                     ? Eigen::MatrixXd(
+                           detail::parse_vector(context_, start, key + ".start", rows, "one value per state"))
+                     : detail::parse_matrix(context_, start, key + ".start", rows, cols, "starting values");
       for (Eigen::Index i = 0; i < rows; ++i)
         for (Eigen::Index j = 0; j < cols; ++j) {
-          const std::optional<double> s = starts.size() > 0 ? std::optional<double>(starts(i, j)) : std::nullopt;
+          const std::optional<double> s =
+              starts.size() > 0 ? std::optional<double>(starts(i, j)) : std::nullopt;
           const int parameter = add_parameter(vector ? index_key(key, i) : index_key(index_key(key, i), j),
                                               ParameterKind::coefficient, matrix, s);
           result_.spec.entries.push_back({parameter, matrix, i, j, 1.0});
@@ -224,7 +238,8 @@ class TemplateBuilder {
         }
       place.layout = vector ? "vector" : "rows";
     }
-    for (std::size_t p = first; p < result_.spec.parameters.size(); ++p) place.parameters.push_back(static_cast<int>(p));
+    for (std::size_t p = first; p < result_.spec.parameters.size(); ++p)
+      place.parameters.push_back(static_cast<int>(p));
     result_.places.push_back(place);
     if (matrix == ModelMatrix::initial_mean) {
       value = detail::vector_to_json(numbers.col(0));
@@ -233,25 +248,27 @@ class TemplateBuilder {
     }
   }
 
-  void group(const std::vector<EntryMarker>& markers, json& value, const std::string& key, const std::string& pointer,
+  void group(const std::vector<EntryMarker>& markers, json& value, const std::string& key,
              ModelMatrix matrix) {
     const bool covariance = is_covariance(matrix);
     std::map<std::string, int> local;  // parameter name → index
-    std::vector<bool> placed(markers.size(), false);
-    for (std::size_t a = 0; a < markers.size(); ++a) {
-      const EntryMarker& marker = markers[a];
+    for (const EntryMarker& marker : markers) {
       std::string name = marker.link;
       if (name.empty()) {
         name = marker.key;
         if (covariance && marker.row != marker.column) {
-          // An unnamed covariance off the diagonal: its mirror entry must be marked too; the pair is one parameter.
+          // An unnamed covariance off the diagonal: its mirror entry must be marked too; the pair is one
+          // parameter.
           bool mirrored = false;
           for (const auto& other : markers)
-            mirrored = mirrored || (other.link.empty() && other.row == marker.column && other.column == marker.row);
+            mirrored =
+                mirrored || (other.link.empty() && other.row == marker.column && other.column == marker.row);
           if (!mirrored)
-            context_.fail(marker.key, "is marked \"estimate\" but " + index_key(index_key(key, marker.column), marker.row) +
+            context_.fail(marker.key, "is marked \"estimate\" but " +
+                                          index_key(index_key(key, marker.column), marker.row) +
                                           " is not; a covariance matrix is symmetric, so mark both");
-          name = index_key(index_key(key, std::max(marker.row, marker.column)), std::min(marker.row, marker.column));
+          name = index_key(index_key(key, std::max(marker.row, marker.column)),
+                           std::min(marker.row, marker.column));
         }
       }
       auto found = local.find(name);
@@ -259,7 +276,8 @@ class TemplateBuilder {
       if (found == local.end()) {
         auto global = linked_.find(name);
         if (global != linked_.end() && !marker.link.empty())
-          context_.fail(marker.key + ".parameter", "the parameter \"" + name + "\" is also used in " + global->second +
+          context_.fail(marker.key + ".parameter", "the parameter \"" + name + "\" is also used in " +
+                                                       global->second +
                                                        "; a parameter may appear in one matrix only");
         if (!marker.link.empty()) linked_[name] = key;
         parameter = add_parameter(name, ParameterKind::coefficient, matrix, marker.start);
@@ -280,7 +298,6 @@ class TemplateBuilder {
         place.matrix = matrix;
         result_.places.push_back(place);
       }
-      placed[a] = true;
     }
     // A covariance parameter with an entry on the diagonal is a variance (kept positive); one only
     // off the diagonal is a covariance (any sign).
@@ -309,7 +326,6 @@ class TemplateBuilder {
       }
       *target = number;
     }
-    (void)pointer;
   }
 
   const JsonContext& context_;
@@ -390,7 +406,9 @@ ModelTemplate parse_model_template(std::string_view json_text, const std::string
     return root.contains(key) && root[key].is_array() ? static_cast<Eigen::Index>(root[key].size()) : 0;
   };
   const Eigen::Index m = count("observations"), p = count("inputs");
-  auto sized = [&](const char* key) { return root.contains(key) && (root[key].is_array() || root[key].is_number()); };
+  auto sized = [&](const char* key) {
+    return root.contains(key) && (root[key].is_array() || root[key].is_number());
+  };
   Eigen::Index n = 0;
   if (root.contains("states"))
     n = count("states");
@@ -399,11 +417,15 @@ ModelTemplate parse_model_template(std::string_view json_text, const std::string
   else if (sized("Q"))
     n = detail::matrix_rows(context, root["Q"], "Q");
   else if (root.contains("A"))
-    context.fail("states", "missing; with A and Q marked \"estimate\" as a whole, list the states so that the "
-                          "model's size is known");
+    context.fail("states",
+                 "missing; with A and Q marked \"estimate\" as a whole, list the states so that the "
+                 "model's size is known");
   TemplateBuilder builder(context, result, component_parameters);
-  const std::pair<const char*, ModelMatrix> matrices[] = {
-      {"A", ModelMatrix::A}, {"B", ModelMatrix::B}, {"C", ModelMatrix::C}, {"Q", ModelMatrix::Q}, {"R", ModelMatrix::R}};
+  const std::pair<const char*, ModelMatrix> matrices[] = {{"A", ModelMatrix::A},
+                                                          {"B", ModelMatrix::B},
+                                                          {"C", ModelMatrix::C},
+                                                          {"Q", ModelMatrix::Q},
+                                                          {"R", ModelMatrix::R}};
   for (const auto& [key, matrix] : matrices) {
     if (!root.contains(key)) continue;
     const Eigen::Index rows = matrix == ModelMatrix::C || matrix == ModelMatrix::R ? m : n;
@@ -424,14 +446,16 @@ ModelTemplate parse_model_template(std::string_view json_text, const std::string
             for (const auto& entry : row) marked = marked || detail::is_estimate_marker(entry);
         }
       if (marked)
-        context.fail("initial.covariance", "cannot be estimated from one series; give it, or mark the states "
-                                           "\"diffuse\" when nothing is known about them");
+        context.fail("initial.covariance",
+                     "cannot be estimated from one series; give it, or mark the states "
+                     "\"diffuse\" when nothing is known about them");
     }
   }
   for (const auto& origin : origins) {
     FittedValuePlace place;
     place.pointer = origin.pointer;
-    place.form = origin.is_list ? FittedValuePlace::Form::component_list : FittedValuePlace::Form::component_value;
+    place.form =
+        origin.is_list ? FittedValuePlace::Form::component_list : FittedValuePlace::Form::component_value;
     for (const auto& name : origin.parameters)
       for (std::size_t i = 0; i < result.spec.parameters.size(); ++i)
         if (result.spec.parameters[i].name == name) place.parameters.push_back(static_cast<int>(i));

@@ -1,14 +1,13 @@
 #include "statewise/fit.h"
 
+#include <Eigen/Cholesky>
+#include <Eigen/Eigenvalues>
 #include <algorithm>
 #include <cmath>
 #include <limits>
 #include <map>
 #include <set>
 #include <stdexcept>
-
-#include <Eigen/Cholesky>
-#include <Eigen/Eigenvalues>
 // LBFGSpp (Debian liblbfgspp-dev), header-only.
 #include <LBFGS.h>
 
@@ -91,7 +90,8 @@ std::vector<double> parameter_scales(const EstimationSpec& spec, const Observati
     for (const auto& entry : spec.entries) {
       if (entry.parameter != static_cast<int>(p) || entry.row != entry.column) continue;
       largest_times = std::max(largest_times, entry.times);
-      channel_sum += free.matrix == ModelMatrix::R ? channel[static_cast<std::size_t>(entry.row)] : mean_scale;
+      channel_sum +=
+          free.matrix == ModelMatrix::R ? channel[static_cast<std::size_t>(entry.row)] : mean_scale;
       ++diagonal;
     }
     const double base = diagonal > 0 ? 0.5 * channel_sum / diagonal : 0.5 * mean_scale;
@@ -137,11 +137,13 @@ Eigen::VectorXd starting_values(const ModelTemplate& model_template, const std::
 // coefficient: theta = value; variance: theta = log value; full block: P = L L' with L lower
 // triangular, theta = log L_ii on the diagonal and L_ij below it.
 
-Eigen::VectorXd to_search(const EstimationSpec& spec, const Eigen::VectorXd& values, const std::vector<double>& scales) {
+Eigen::VectorXd to_search(const EstimationSpec& spec, const Eigen::VectorXd& values,
+                          const std::vector<double>& scales) {
   Eigen::VectorXd theta = values;
   for (std::size_t p = 0; p < spec.size(); ++p)
     if (spec.parameters[p].kind == ParameterKind::variance)
-      theta(static_cast<Eigen::Index>(p)) = std::log(std::max(values(static_cast<Eigen::Index>(p)), scales[p] * 1e-12));
+      theta(static_cast<Eigen::Index>(p)) =
+          std::log(std::max(values(static_cast<Eigen::Index>(p)), scales[p] * 1e-12));
   for (const auto& block : spec.full_blocks) {
     Eigen::MatrixXd P(block.size, block.size);
     std::size_t k = 0;
@@ -255,11 +257,13 @@ bool constrained_regression(const std::vector<Eigen::Index>& rows, const std::ve
 }
 
 // Inverse of the block of a covariance over `rows`; false when singular.
-bool block_inverse(const Eigen::MatrixXd& covariance, const std::vector<Eigen::Index>& rows, Eigen::MatrixXd& inverse) {
+bool block_inverse(const Eigen::MatrixXd& covariance, const std::vector<Eigen::Index>& rows,
+                   Eigen::MatrixXd& inverse) {
   const auto r = static_cast<Eigen::Index>(rows.size());
   Eigen::MatrixXd block(r, r);
   for (Eigen::Index i = 0; i < r; ++i)
-    for (Eigen::Index j = 0; j < r; ++j) block(i, j) = covariance(rows[static_cast<std::size_t>(i)], rows[static_cast<std::size_t>(j)]);
+    for (Eigen::Index j = 0; j < r; ++j)
+      block(i, j) = covariance(rows[static_cast<std::size_t>(i)], rows[static_cast<std::size_t>(j)]);
   const Eigen::LLT<Eigen::MatrixXd> llt(block);
   if (llt.info() != Eigen::Success) return false;
   const double largest = block.diagonal().maxCoeff();
@@ -272,7 +276,8 @@ bool block_inverse(const Eigen::MatrixXd& covariance, const std::vector<Eigen::I
 // The M-step of a covariance matrix given S, the expected second moment of its noise: a whole
 // matrix becomes S; a variance with shape M on its states I becomes tr(M^+ S_II) / rank M
 // (Shumway and Stoffer 1982; Holmes 2012 for the constrained forms).
-void covariance_update(const EstimationSpec& spec, ModelMatrix matrix, const Eigen::MatrixXd& S, Eigen::VectorXd& values) {
+void covariance_update(const EstimationSpec& spec, ModelMatrix matrix, const Eigen::MatrixXd& S,
+                       Eigen::VectorXd& values) {
   for (const auto& block : spec.full_blocks) {
     if (block.matrix != matrix) continue;
     std::size_t k = 0;
@@ -285,7 +290,8 @@ void covariance_update(const EstimationSpec& spec, ModelMatrix matrix, const Eig
     for (const auto& entry : spec.entries)
       if (entry.parameter == static_cast<int>(p)) {
         if (std::find(states.begin(), states.end(), entry.row) == states.end()) states.push_back(entry.row);
-        if (std::find(states.begin(), states.end(), entry.column) == states.end()) states.push_back(entry.column);
+        if (std::find(states.begin(), states.end(), entry.column) == states.end())
+          states.push_back(entry.column);
       }
     std::sort(states.begin(), states.end());
     const auto r = static_cast<Eigen::Index>(states.size());
@@ -296,7 +302,8 @@ void covariance_update(const EstimationSpec& spec, ModelMatrix matrix, const Eig
     for (const auto& entry : spec.entries)
       if (entry.parameter == static_cast<int>(p)) shape(at(entry.row), at(entry.column)) = entry.times;
     for (Eigen::Index i = 0; i < r; ++i)
-      for (Eigen::Index j = 0; j < r; ++j) block(i, j) = S(states[static_cast<std::size_t>(i)], states[static_cast<std::size_t>(j)]);
+      for (Eigen::Index j = 0; j < r; ++j)
+        block(i, j) = S(states[static_cast<std::size_t>(i)], states[static_cast<std::size_t>(j)]);
     const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eigen(shape);
     const double largest = eigen.eigenvalues().cwiseAbs().maxCoeff();
     double trace = 0.0;
@@ -343,7 +350,8 @@ bool em_step(const ModelTemplate& model_template, const ObservationSeries& serie
     Sxx += Exx;
     if (t > 0) {
       const Eigen::VectorXd previous = smoothed.track.mean(t - 1);
-      const Eigen::MatrixXd Eprev = Eigen::MatrixXd(smoothed.track.covariance(t - 1)) + previous * previous.transpose();
+      const Eigen::MatrixXd Eprev =
+          Eigen::MatrixXd(smoothed.track.covariance(t - 1)) + previous * previous.transpose();
       const Eigen::MatrixXd Elag = smoothed.lag_one[t] + x * previous.transpose();
       Eigen::VectorXd u = Eigen::VectorXd::Zero(p);
       for (Eigen::Index j = 0; j < p; ++j) u(j) = series.row_inputs(t - 1)[j];
@@ -365,12 +373,15 @@ bool em_step(const ModelTemplate& model_template, const ObservationSeries& serie
     Eigen::MatrixXd Eyx(m, n), Eyy(m, m);
     Eigen::VectorXd y_o(static_cast<Eigen::Index>(o.size()));
     for (std::size_t a = 0; a < o.size(); ++a) y_o(static_cast<Eigen::Index>(a)) = y[o[a]];
-    Eigen::MatrixXd G = Eigen::MatrixXd::Zero(static_cast<Eigen::Index>(mis.size()), static_cast<Eigen::Index>(o.size()));
+    Eigen::MatrixXd G =
+        Eigen::MatrixXd::Zero(static_cast<Eigen::Index>(mis.size()), static_cast<Eigen::Index>(o.size()));
     if (!mis.empty() && !o.empty()) {
       Eigen::MatrixXd Roo(y_o.size(), y_o.size()), Rmo(G.rows(), G.cols());
       for (std::size_t a = 0; a < o.size(); ++a) {
-        for (std::size_t b = 0; b < o.size(); ++b) Roo(static_cast<Eigen::Index>(a), static_cast<Eigen::Index>(b)) = model.R(o[a], o[b]);
-        for (std::size_t b = 0; b < mis.size(); ++b) Rmo(static_cast<Eigen::Index>(b), static_cast<Eigen::Index>(a)) = model.R(mis[b], o[a]);
+        for (std::size_t b = 0; b < o.size(); ++b)
+          Roo(static_cast<Eigen::Index>(a), static_cast<Eigen::Index>(b)) = model.R(o[a], o[b]);
+        for (std::size_t b = 0; b < mis.size(); ++b)
+          Rmo(static_cast<Eigen::Index>(b), static_cast<Eigen::Index>(a)) = model.R(mis[b], o[a]);
       }
       if (Rmo.cwiseAbs().maxCoeff() > 0.0) G = Roo.ldlt().solve(Rmo.transpose()).transpose();
     }
@@ -428,7 +439,8 @@ bool em_step(const ModelTemplate& model_template, const ObservationSeries& serie
   };
   for (const auto& entry : spec.entries) {
     if (entry.matrix == ModelMatrix::A || entry.matrix == ModelMatrix::B) {
-      dynamics.push_back({entry.row, entry.column + (entry.matrix == ModelMatrix::B ? n : 0), entry.parameter, entry.times});
+      dynamics.push_back(
+          {entry.row, entry.column + (entry.matrix == ModelMatrix::B ? n : 0), entry.parameter, entry.times});
       add_row(dynamic_rows, entry.row);
     } else if (entry.matrix == ModelMatrix::C) {
       observation.push_back({entry.row, entry.column, entry.parameter, entry.times});
@@ -461,9 +473,9 @@ bool em_step(const ModelTemplate& model_template, const ObservationSeries& serie
     Eigen::MatrixXd stacked(n, n + p);
     stacked << model.A, model.B;
     // S_Q = (1/(T-1)) sum E[(x_t - G z_{t-1})(x_t - G z_{t-1})']
-    const Eigen::MatrixXd SQ = (S11 - stacked * Sxz.transpose() - Sxz * stacked.transpose() +
-                                stacked * Szz * stacked.transpose()) /
-                               static_cast<double>(T - 1);
+    const Eigen::MatrixXd SQ =
+        (S11 - stacked * Sxz.transpose() - Sxz * stacked.transpose() + stacked * Szz * stacked.transpose()) /
+        static_cast<double>(T - 1);
     covariance_update(spec, ModelMatrix::Q, SQ, values);
     // S_R = (1/T) sum E[(y_t - C x_t)(y_t - C x_t)']
     const Eigen::MatrixXd SR =
@@ -496,8 +508,9 @@ bool em_step(const ModelTemplate& model_template, const ObservationSeries& serie
 
 // Observed information on the search scale by central differences of log L, turned into standard
 // errors of the natural values by the delta method. `active` marks parameters not at zero.
-std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evaluator, const Eigen::VectorXd& theta,
-                                    const std::vector<bool>& active, std::string& trouble) {
+std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evaluator,
+                                    const Eigen::VectorXd& theta, const std::vector<bool>& active,
+                                    std::string& trouble) {
   const Eigen::Index k = theta.size();
   std::vector<Eigen::Index> index;
   for (Eigen::Index i = 0; i < k; ++i)
@@ -508,7 +521,8 @@ std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evalu
   auto f = [&](const Eigen::VectorXd& point) { return evaluator.log_likelihood(to_natural(spec, point)); };
   const double center = f(theta);
   Eigen::VectorXd h(a);
-  for (Eigen::Index i = 0; i < a; ++i) h(i) = 1e-4 * std::max(1.0, std::abs(theta(index[static_cast<std::size_t>(i)])));
+  for (Eigen::Index i = 0; i < a; ++i)
+    h(i) = 1e-4 * std::max(1.0, std::abs(theta(index[static_cast<std::size_t>(i)])));
   Eigen::MatrixXd hessian(a, a);
   for (Eigen::Index i = 0; i < a; ++i) {
     const Eigen::Index pi = index[static_cast<std::size_t>(i)];
@@ -534,12 +548,14 @@ std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evalu
   const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eigen(information);
   const double largest = eigen.eigenvalues().cwiseAbs().maxCoeff();
   if (!(eigen.eigenvalues().minCoeff() > 1e-10 * largest)) {
-    trouble = "the observed information is not positive definite: the likelihood is flat in some direction, "
-              "so some parameters are not determined by the data";
+    trouble =
+        "the observed information is not positive definite: the likelihood is flat in some direction, "
+        "so some parameters are not determined by the data";
     return errors;
   }
-  const Eigen::MatrixXd covariance_theta =
-      eigen.eigenvectors() * eigen.eigenvalues().cwiseInverse().asDiagonal() * eigen.eigenvectors().transpose();
+  const Eigen::MatrixXd covariance_theta = eigen.eigenvectors() *
+                                           eigen.eigenvalues().cwiseInverse().asDiagonal() *
+                                           eigen.eigenvectors().transpose();
   // Jacobian of the natural values with respect to the active search values (central differences
   // of a smooth closed-form map).
   Eigen::MatrixXd J = Eigen::MatrixXd::Zero(k, a);
@@ -553,7 +569,8 @@ std::vector<double> standard_errors(const EstimationSpec& spec, Evaluator& evalu
   }
   const Eigen::MatrixXd covariance = J * covariance_theta * J.transpose();
   for (Eigen::Index i = 0; i < k; ++i)
-    if (active[static_cast<std::size_t>(i)]) errors[static_cast<std::size_t>(i)] = std::sqrt(std::max(covariance(i, i), 0.0));
+    if (active[static_cast<std::size_t>(i)])
+      errors[static_cast<std::size_t>(i)] = std::sqrt(std::max(covariance(i, i), 0.0));
   return errors;
 }
 
@@ -669,7 +686,8 @@ std::string em_unavailable_reason(const ModelTemplate& model_template) {
       }
   }
   // Rows of A/B (C) with free entries need their own block of Q (R), not tied to other rows, with noise.
-  auto check_rows = [&](std::initializer_list<ModelMatrix> matrices, ModelMatrix noise, const char* what) -> std::string {
+  auto check_rows = [&](std::initializer_list<ModelMatrix> matrices, ModelMatrix noise,
+                        const char* what) -> std::string {
     std::set<Eigen::Index> rows;
     std::string example;
     for (const auto& entry : spec.entries)
@@ -697,7 +715,8 @@ std::string em_unavailable_reason(const ModelTemplate& model_template) {
   return reason;
 }
 
-FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries& series, const FitOptions& options) {
+FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries& series,
+                    const FitOptions& options) {
   const EstimationSpec& spec = model_template.spec;
   FitResult result;
   result.model = model_template.model;
@@ -712,7 +731,8 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
   Eigen::VectorXd fallback = values;
   for (std::size_t p = 0; p < spec.size(); ++p)
     if (spec.parameters[p].kind != ParameterKind::coefficient)
-      fallback(static_cast<Eigen::Index>(p)) = spec.parameters[p].kind == ParameterKind::variance ? scales[p] : 0.0;
+      fallback(static_cast<Eigen::Index>(p)) =
+          spec.parameters[p].kind == ParameterKind::variance ? scales[p] : 0.0;
   for (const auto& block : spec.full_blocks) {
     std::size_t k = 0;
     for (Eigen::Index i = 0; i < block.size; ++i)
@@ -725,11 +745,13 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     log_likelihood = evaluator.log_likelihood(fallback);
     if (std::isnan(log_likelihood)) {
       result.status = FitStatus::failed;
-      result.message = "the log-likelihood cannot be computed at the starting values (check that the noise "
-                       "variances are not zero where channels are observed, and that the log has data)";
+      result.message =
+          "the log-likelihood cannot be computed at the starting values (check that the noise "
+          "variances are not zero where channels are observed, and that the log has data)";
       return result;
     }
-    result.warnings.push_back("the starting values gave no valid log-likelihood; started from values chosen from the data");
+    result.warnings.push_back(
+        "the starting values gave no valid log-likelihood; started from values chosen from the data");
     values = fallback;
   }
 
@@ -741,8 +763,10 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     return result;
   }
   int em_budget = 0;
-  if (options.method == FitMethod::em) em_budget = options.max_em_iterations;
-  else if (em_available) em_budget = options.em_steps;
+  if (options.method == FitMethod::em)
+    em_budget = options.max_em_iterations;
+  else if (em_available)
+    em_budget = options.em_steps;
   result.status = FitStatus::converged;
 
   // EM steps.
@@ -785,7 +809,8 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     }
     if (options.method == FitMethod::em && !em_converged && result.status == FitStatus::converged) {
       result.status = FitStatus::iteration_limit;
-      result.message = "EM reached its limit of " + std::to_string(em_budget) + " iterations before converging";
+      result.message =
+          "EM reached its limit of " + std::to_string(em_budget) + " iterations before converging";
     }
   }
   result.method = spec.size() == 0 ? "none" : result.em_iterations > 0 ? "em" : "";
@@ -800,7 +825,9 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     if (!std::isnan(at_data_scale) && at_data_scale > log_likelihood) {
       values = fallback;
       log_likelihood = at_data_scale;
-      result.warnings.push_back("the starting values were far off; the search began from values chosen from the data");
+      result.warnings.push_back(
+          "values chosen from the data gave a higher log-likelihood than the starting values; "
+          "the search began from them");
     }
     Eigen::VectorXd theta = to_search(spec, values, scales);
     LBFGSpp::LBFGSParam<double> parameters;
@@ -814,7 +841,8 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     // the log-likelihood cannot be computed simply halves the step.
     LBFGSpp::LBFGSSolver<double, LBFGSpp::LineSearchBacktracking> solver(parameters);
     Objective objective{spec, evaluator,
-                        static_cast<double>(std::max<std::size_t>(1, exact_log_likelihood(result.model, series).observed_values)),
+                        static_cast<double>(std::max<std::size_t>(
+                            1, exact_log_likelihood(result.model, series).observed_values)),
                         theta};
     double f = 0.0;
     // LBFGSpp throws when its line search cannot progress: near the maximum that is the limit of the
@@ -867,8 +895,9 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
         log_likelihood = std::max(log_likelihood, at_zero);
       }
       active[p] = false;
-      result.warnings.push_back(spec.parameters[p].name +
-                                " went to zero: the data show no such noise (that part of the model is deterministic)");
+      result.warnings.push_back(
+          spec.parameters[p].name +
+          " went to zero: the data show no such noise (that part of the model is deterministic)");
     }
   }
 
@@ -880,7 +909,8 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     result.warnings.push_back("some diffuse initial states are not determined by the data");
   const double penalty = static_cast<double>(result.parameters + result.diffuse_states);
   result.aic = -2.0 * result.log_likelihood + 2.0 * penalty;
-  result.bic = -2.0 * result.log_likelihood + penalty * std::log(static_cast<double>(std::max<std::size_t>(1, result.observed_values)));
+  result.bic = -2.0 * result.log_likelihood +
+               penalty * std::log(static_cast<double>(std::max<std::size_t>(1, result.observed_values)));
 
   std::vector<double> errors(spec.size(), kNaN);
   if (options.standard_errors && spec.size() > 0) {
@@ -901,12 +931,13 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
   if (result.message.empty())
     result.message = result.status == FitStatus::converged ? "converged" : status_name(result.status);
   if (result.status != FitStatus::converged)
-    result.warnings.push_back("the fit did not converge (" + result.message + "); the best model found is returned");
+    result.warnings.push_back("the fit did not converge (" + result.message +
+                              "); the best model found is returned");
   return result;
 }
 
-std::string write_fit_report_json(const FitResult& result, const std::string& model_path, const std::string& input_path,
-                                  std::size_t rows) {
+std::string write_fit_report_json(const FitResult& result, const std::string& model_path,
+                                  const std::string& input_path, std::size_t rows) {
   using detail::OrderedJson;
   auto number = [](double value) { return std::isfinite(value) ? OrderedJson(value) : OrderedJson(nullptr); };
   OrderedJson root = OrderedJson::object();

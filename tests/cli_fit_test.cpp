@@ -2,15 +2,14 @@
 // (STATEWISE_BINARY): a fitted model file must run unchanged through `smooth`.
 
 #include <doctest/doctest.h>
-
-#include <cstdlib>
-#include <fstream>
-#include <sstream>
-#include <string>
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <cstdlib>
+#include <fstream>
 #include <nlohmann/json.hpp>
+#include <sstream>
+#include <string>
 
 namespace {
 
@@ -35,8 +34,8 @@ std::string read(const std::string& path) {
 
 // Runs the binary with `arguments`; standard output and error go to files in `folder`.
 int run(const Folder& folder, const std::string& arguments) {
-  const std::string command = std::string(STATEWISE_BINARY) + " " + arguments + " >'" + folder.file("stdout") +
-                              "' 2>'" + folder.file("stderr") + "'";
+  const std::string command = std::string(STATEWISE_BINARY) + " " + arguments + " >'" +
+                              folder.file("stdout") + "' 2>'" + folder.file("stderr") + "'";
   const int status = std::system(command.c_str());
   return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
 }
@@ -56,8 +55,9 @@ const std::string kNile = STATEWISE_TEST_DATA_DIR "/nile.csv";
 TEST_CASE("cli: a fitted model file runs unchanged through smooth") {
   Folder folder;
   write(folder.file("model.json"), kLevelModel);
-  REQUIRE(run(folder, "fit -m '" + folder.file("model.json") + "' '" + kNile + "' -o '" + folder.file("fitted.json") +
-                          "' --report '" + folder.file("report.json") + "'") == 0);
+  REQUIRE(run(folder, "fit -m '" + folder.file("model.json") + "' '" + kNile + "' -o '" +
+                          folder.file("fitted.json") + "' --report '" + folder.file("report.json") + "'") ==
+          0);
   const auto report = nlohmann::json::parse(read(folder.file("report.json")));
   CHECK(report["converged"] == true);
   CHECK(report["parameters"] == 2);
@@ -70,7 +70,8 @@ TEST_CASE("cli: a fitted model file runs unchanged through smooth") {
   CHECK(report["estimates"][0]["name"] == "components[0].variance");
   CHECK(report["estimates"][0]["standard_error"].is_number());
   CHECK(report["iterations"]["mle"].get<int>() > 0);
-  CHECK(read(folder.file("fitted.json")).find("\"description\": \"Nile: a level seen with noise\"") != std::string::npos);
+  CHECK(read(folder.file("fitted.json")).find("\"description\": \"Nile: a level seen with noise\"") !=
+        std::string::npos);
 
   REQUIRE(run(folder, "smooth -m '" + folder.file("fitted.json") + "' '" + kNile + "' -o '" +
                           folder.file("smoothed.csv") + "'") == 0);
@@ -101,8 +102,8 @@ TEST_CASE("cli: several models are ranked by AIC in one table") {
   write(folder.file("level.json"), kLevelModel);
   write(folder.file("trend.json"), R"({"observations": ["flow"], "R": "estimate",
     "components": [{"type": "trend", "level_variance": "estimate", "slope_variance": "estimate"}]})");
-  REQUIRE(run(folder, "fit -m '" + folder.file("trend.json") + "' -m '" + folder.file("level.json") + "' '" + kNile +
-                          "'") == 0);
+  REQUIRE(run(folder, "fit -m '" + folder.file("trend.json") + "' -m '" + folder.file("level.json") + "' '" +
+                          kNile + "'") == 0);
   const std::string table = read(folder.file("stdout"));
   std::istringstream lines(table);
   std::string header, first, second;

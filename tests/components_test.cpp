@@ -1,13 +1,14 @@
 // Checks of the model building blocks (statewise/components.h): each expansion against the matrices
 // written out by hand from the formula its source gives, plus the error messages.
 
+#include "statewise/components.h"
+
 #include <doctest/doctest.h>
 
 #include <cmath>
 #include <numbers>
 #include <string>
 
-#include "statewise/components.h"
 #include "statewise/error.h"
 #include "statewise/model.h"
 
@@ -136,22 +137,28 @@ TEST_CASE("components: a bias feeds one channel, a regression enters through B")
 
 TEST_CASE("components: errors name the key") {
   CHECK(error_of(R"({"observations": ["y"], "R": 1, "components": [{"type": "leve", "variance": 1}]})") ==
-        "model.json: components[0].type: unknown component \"leve\"; expected one of level, trend, seasonal, ar, "
+        "model.json: components[0].type: unknown component \"leve\"; expected one of level, trend, seasonal, "
+        "ar, "
         "constant_velocity, constant_acceleration, bias, regression; did you mean \"level\"?");
   CHECK(error_of(R"({"observations": ["y"], "R": 1, "components": [{"type": "level"}]})") ==
         "model.json: components[0].variance: missing; expected a variance or \"estimate\"");
   CHECK(error_of(R"({"observations": ["y"], "R": 1,
     "components": [{"type": "level", "variance": 1}, {"type": "level", "variance": 2}]})") ==
-        "model.json: components[1]: its state \"level\" has the name of a state of an earlier component; give this "
+        "model.json: components[1]: its state \"level\" has the name of a state of an earlier component; "
+        "give this "
         "component a different \"name\"");
-  CHECK(error_of(R"({"observations": ["probe"], "R": 1,
+  CHECK(
+      error_of(R"({"observations": ["probe"], "R": 1,
     "components": [{"type": "bias", "channel": "prbe", "variance": 1}]})") ==
-        "model.json: components[0].channel: \"prbe\" is not one of the observations; did you mean \"probe\"?");
+      "model.json: components[0].channel: \"prbe\" is not one of the observations; did you mean \"probe\"?");
   CHECK(error_of(R"({"observations": ["y"], "R": 1, "A": [[1]],
     "components": [{"type": "level", "variance": 1}]})") ==
-        "model.json: A: given together with \"components\", which build the states, A, C and Q; give one or the other");
-  CHECK(error_of(R"({"observations": ["y"], "R": 1, "components": [{"type": "level", "variance": 1, "chanels": ["y"]}]})") ==
-        "model.json: components[0].chanels: unknown key; did you mean \"channels\"?");
+        "model.json: A: given together with \"components\", which build the states, A, C and Q; give one or "
+        "the other");
+  CHECK(
+      error_of(
+          R"({"observations": ["y"], "R": 1, "components": [{"type": "level", "variance": 1, "chanels": ["y"]}]})") ==
+      "model.json: components[0].chanels: unknown key; did you mean \"channels\"?");
   CHECK(error_of(R"({"observations": ["y"], "R": 1,
     "components": [{"type": "seasonal", "period": 4, "form": "trigonometric", "harmonics": 3, "variance": 1}]})") ==
         "model.json: components[0].harmonics: a period of 4 has at most 2 harmonics, got 3");
@@ -189,6 +196,7 @@ TEST_CASE("a diffuse model round-trips through write_model") {
   CHECK(again.diffuse == model.diffuse);
   CHECK(again.initial_mean == model.initial_mean);
   CHECK(again.initial_covariance == model.initial_covariance);
-  CHECK(error_of(R"({"observations": ["y"], "R": 1, "A": 1, "C": 1, "Q": 1, "initial": {"diffuse": ["levl"]}})") ==
+  CHECK(error_of(
+            R"({"observations": ["y"], "R": 1, "A": 1, "C": 1, "Q": 1, "initial": {"diffuse": ["levl"]}})") ==
         "model.json: initial.diffuse[0]: no state is named \"levl\"");
 }

@@ -5,13 +5,14 @@
 // of tests/joint_gaussian.h (no recursion shared with the library) at kappa = 1e7, where the
 // limit is reached to O(1/kappa).
 
+#include "statewise/diffuse.h"
+
 #include <doctest/doctest.h>
 
 #include <cmath>
 #include <vector>
 
 #include "joint_gaussian.h"
-#include "statewise/diffuse.h"
 #include "statewise/smoother.h"
 #include "test_random.h"
 
@@ -45,7 +46,8 @@ StateSpaceModel trend_two_probes(bool slope_diffuse) {
 // The same model with the diffuse states given variance kappa instead.
 StateSpaceModel with_large_prior(StateSpaceModel model) {
   for (std::size_t i = 0; i < model.diffuse.size(); ++i)
-    if (model.diffuse[i]) model.initial_covariance(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(i)) = kKappa;
+    if (model.diffuse[i])
+      model.initial_covariance(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(i)) = kKappa;
   model.diffuse.clear();
   return model;
 }
@@ -54,7 +56,8 @@ ObservationSeries make_series(const std::vector<double>& values, int channels) {
   ObservationSeries series;
   series.channels = channels;
   series.values = values;
-  for (std::size_t t = 0; t < values.size() / static_cast<std::size_t>(channels); ++t) series.lines.push_back(t + 2);
+  for (std::size_t t = 0; t < values.size() / static_cast<std::size_t>(channels); ++t)
+    series.lines.push_back(t + 2);
   return series;
 }
 
@@ -77,7 +80,7 @@ TEST_CASE("diffuse log-likelihood is the limit of a large proper prior plus (q/2
   for (const bool slope_diffuse : {false, true}) {
     const StateSpaceModel model = trend_two_probes(slope_diffuse);
     std::vector<double> values = trend_data(12, 11);
-    values[1] = std::nan("");  // row 0 has one probe only
+    values[1] = std::nan("");              // row 0 has one probe only
     values[4] = values[5] = std::nan("");  // row 2 has none
     values[13] = std::nan("");
     const ObservationSeries series = make_series(values, 2);
@@ -128,11 +131,14 @@ TEST_CASE("exact diffuse smoother equals the limit of the conditional moments") 
       CHECK(smoothed.track.mean(static_cast<std::size_t>(t))(i) ==
             doctest::Approx(reference.conditional_mean(2 * t + i)).epsilon(1e-6));
       for (int j = 0; j < 2; ++j) {
-        CHECK(smoothed.track.covariance(static_cast<std::size_t>(t))(i, j) ==
-              doctest::Approx(reference.conditional_covariance(2 * t + i, 2 * t + j)).epsilon(1e-6).scale(1.0));
+        CHECK(
+            smoothed.track.covariance(static_cast<std::size_t>(t))(i, j) ==
+            doctest::Approx(reference.conditional_covariance(2 * t + i, 2 * t + j)).epsilon(1e-6).scale(1.0));
         if (t > 0)
           CHECK(smoothed.lag_one[static_cast<std::size_t>(t)](i, j) ==
-                doctest::Approx(reference.conditional_covariance(2 * t + i, 2 * (t - 1) + j)).epsilon(1e-6).scale(1.0));
+                doctest::Approx(reference.conditional_covariance(2 * t + i, 2 * (t - 1) + j))
+                    .epsilon(1e-6)
+                    .scale(1.0));
       }
     }
   }

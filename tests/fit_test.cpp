@@ -1,6 +1,8 @@
 // Checks of statewise fit (statewise/fit.h): published maximum-likelihood estimates, recovery of
 // known parameters from simulated data, and properties of the EM algorithm.
 
+#include "statewise/fit.h"
+
 #include <doctest/doctest.h>
 
 #include <algorithm>
@@ -10,7 +12,6 @@
 
 #include "statewise/csv.h"
 #include "statewise/estimation_spec.h"
-#include "statewise/fit.h"
 #include "statewise/series.h"
 #include "test_random.h"
 
@@ -45,8 +46,8 @@ TEST_CASE("Nile local level: maximum-likelihood variances of Durbin and Koopman 
     options.method = method;
     options.em_steps = 0;
     const FitResult fit = fit_model(model, series, options);
-    INFO("method " << static_cast<int>(method) << ": " << fit.message << ", em " << fit.em_iterations << ", mle "
-                   << fit.mle_iterations << ", log L " << fit.log_likelihood);
+    INFO("method " << static_cast<int>(method) << ": " << fit.message << ", em " << fit.em_iterations
+                   << ", mle " << fit.mle_iterations << ", log L " << fit.log_likelihood);
     REQUIRE(fit.estimates.size() == 2);
     // Parameters in file order: the level variance (components[0].variance), then R.
     INFO("level variance " << fit.estimates[0].value << " ± " << fit.estimates[0].standard_error);
@@ -150,7 +151,8 @@ TEST_CASE("simulated local linear trend: estimates scatter around the truth with
     REQUIRE(fit.estimates.size() == 4);
     for (int p = 0; p < 4; ++p) {
       const ParameterEstimate& e = fit.estimates[static_cast<std::size_t>(p)];
-      INFO("seed " << seed << " " << e.name << " = " << e.value << " ± " << e.standard_error << ", truth " << truth[p]);
+      INFO("seed " << seed << " " << e.name << " = " << e.value << " ± " << e.standard_error << ", truth "
+                   << truth[p]);
       REQUIRE(std::isfinite(e.standard_error));
       const double z = (e.value - truth[p]) / e.standard_error;
       CHECK(std::abs(z) < 4.0);
@@ -185,7 +187,8 @@ TEST_CASE("EM never decreases the log-likelihood") {
   for (int t = 0; t < 200; ++t) {
     const double common = random.normal();
     series.values.push_back(random.uniform() < 0.15 ? std::nan("") : level + common + 0.5 * random.normal());
-    series.values.push_back(random.uniform() < 0.15 ? std::nan("") : level + ar + 0.6 * common + random.normal());
+    series.values.push_back(random.uniform() < 0.15 ? std::nan("")
+                                                    : level + ar + 0.6 * common + random.normal());
     series.lines.push_back(static_cast<std::size_t>(t) + 2);
     level += 0.3 * random.normal();
     ar = 0.7 * ar + random.normal();
@@ -245,7 +248,8 @@ TEST_CASE("a flat likelihood gives no standard errors and says why") {
   const FitResult fit = fit_model(model, series, options);
   CHECK(std::isfinite(fit.log_likelihood));
   bool said = false;
-  for (const auto& warning : fit.warnings) said = said || warning.find("not determined by the data") != std::string::npos;
+  for (const auto& warning : fit.warnings)
+    said = said || warning.find("not determined by the data") != std::string::npos;
   CHECK(said);
   for (const auto& e : fit.estimates) CHECK(std::isfinite(e.value));
 }

@@ -15,10 +15,9 @@
 /// q the number of diffuse states: a value whose prediction has a diffuse part adds
 /// -(log 2π + log F_inf)/2 instead of the usual -(log 2π + log F + v²/F)/2.
 
+#include <Eigen/Core>
 #include <cstddef>
 #include <vector>
-
-#include <Eigen/Core>
 
 #include "statewise/filter.h"
 #include "statewise/model.h"
@@ -37,12 +36,12 @@ Eigen::MatrixXd initial_diffuse_covariance(const StateSpaceModel& model);
 
 /// One scalar value as the univariate filter processed it, kept for the smoother.
 struct ScalarUpdate {
-  Eigen::VectorXd z;        ///< the (decorrelated) row of C
-  double v = 0.0;           ///< innovation y - z'a
-  double F_star = 0.0;      ///< z' P_* z + noise variance
-  double F_inf = 0.0;       ///< z' P_inf z (0 outside the diffuse phase)
-  Eigen::VectorXd M_star;   ///< P_* z
-  Eigen::VectorXd M_inf;    ///< P_inf z (empty when F_inf is 0)
+  Eigen::VectorXd z;       ///< the (decorrelated) row of C
+  double v = 0.0;          ///< innovation y - z'a
+  double F_star = 0.0;     ///< z' P_* z + noise variance
+  double F_inf = 0.0;      ///< z' P_inf z (0 outside the diffuse phase)
+  Eigen::VectorXd M_star;  ///< P_* z
+  Eigen::VectorXd M_inf;   ///< P_inf z (empty when F_inf is 0)
 };
 
 /// What the univariate update of one row gave.
@@ -57,18 +56,18 @@ struct UnivariateRowResult {
 /// Updates the mean a, P_* and (when `diffuse` is not null) P_inf with one row's m values (NaN =
 /// missing), one decorrelated value at a time. When `updates` is not null, each value's quantities
 /// are appended to it for the smoother. On a non-ok status the arguments are partly updated.
-UnivariateRowResult univariate_update(const StateSpaceModel& model, const double* values, Eigen::VectorXd& mean,
-                                      Eigen::MatrixXd& covariance, Eigen::MatrixXd* diffuse,
-                                      std::vector<ScalarUpdate>* updates);
+UnivariateRowResult univariate_update(const StateSpaceModel& model, const double* values,
+                                      Eigen::VectorXd& mean, Eigen::MatrixXd& covariance,
+                                      Eigen::MatrixXd* diffuse, std::vector<ScalarUpdate>* updates);
 
 /// The exact log-likelihood of a whole series (the filter alone, no storage).
 struct SeriesLikelihood {
-  double log_likelihood = 0.0;        ///< log L_d (the ordinary log-likelihood when nothing is diffuse)
-  StepStatus status = StepStatus::ok; ///< ok, or the first trouble met
-  std::size_t row = 0;                ///< 0-based row of the trouble, when status is not ok
-  std::size_t diffuse_rows = 0;       ///< rows processed while P_inf ≠ 0
-  bool diffuse_resolved = true;       ///< P_inf reached zero by the end of the series
-  std::size_t observed_values = 0;    ///< non-missing values used
+  double log_likelihood = 0.0;         ///< log L_d (the ordinary log-likelihood when nothing is diffuse)
+  StepStatus status = StepStatus::ok;  ///< ok, or the first trouble met
+  std::size_t row = 0;                 ///< 0-based row of the trouble, when status is not ok
+  std::size_t diffuse_rows = 0;        ///< rows processed while P_inf ≠ 0
+  bool diffuse_resolved = true;        ///< P_inf reached zero by the end of the series
+  std::size_t observed_values = 0;     ///< non-missing values used
 };
 
 /// Runs the exact (diffuse) filter over `series` and returns its log-likelihood. The series' rows
@@ -77,9 +76,10 @@ SeriesLikelihood exact_log_likelihood(const StateSpaceModel& model, const Observ
 
 /// Smoothed moments of every row given the whole series.
 struct ExactSmoothing {
-  StateTrack track{1};                   ///< E[x_t | all data] and Var(x_t | all data) for every row
-  std::vector<Eigen::MatrixXd> lag_one;  ///< entry t ≥ 1: Cov(x_t, x_{t-1} | all data) (when asked; entry 0 is zero)
-  SeriesLikelihood likelihood;           ///< from the forward pass
+  StateTrack track{1};  ///< E[x_t | all data] and Var(x_t | all data) for every row
+  std::vector<Eigen::MatrixXd>
+      lag_one;                  ///< entry t ≥ 1: Cov(x_t, x_{t-1} | all data) (when asked; entry 0 is zero)
+  SeriesLikelihood likelihood;  ///< from the forward pass
 };
 
 /// The exact diffuse fixed-interval smoother (D&K 2012, section 5.3, in the univariate form of

@@ -11,12 +11,11 @@
 ///   - a component's field written "estimate" (statewise/components.h).
 /// The model is read with starting values in place of the markers, so the usual checks apply.
 
+#include <Eigen/Core>
 #include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
-
-#include <Eigen/Core>
 
 #include "statewise/model.h"
 
@@ -32,12 +31,13 @@ const char* matrix_key(ModelMatrix matrix);
 enum class ParameterKind {
   coefficient,      ///< any real number: entries of A, B, C, the initial mean, a covariance off the diagonal
   variance,         ///< a positive scale of Q or R entries (searched on the log scale; may end at zero)
-  full_covariance,  ///< an entry of a whole covariance matrix marked "estimate" (searched through its Cholesky factor)
+  full_covariance,  ///< an entry of a whole covariance matrix marked "estimate" (searched through its
+                    ///< Cholesky factor)
 };
 
 /// One estimated number.
 struct FreeParameter {
-  std::string name;     ///< where it was marked, as a key path: "R[1][1]", "Q", "components[0].variance"
+  std::string name;  ///< where it was marked, as a key path: "R[1][1]", "Q", "components[0].variance"
   ParameterKind kind = ParameterKind::coefficient;
   ModelMatrix matrix = ModelMatrix::Q;
   std::optional<double> start;  ///< the file's "start", else chosen from the data by fit_model
@@ -78,19 +78,19 @@ struct EstimationSpec {
 
 /// Where a fitted value goes back into the user's file (private to write_fitted_model).
 struct FittedValuePlace {
-  std::string pointer;          ///< JSON pointer into the file
+  std::string pointer;  ///< JSON pointer into the file
   enum class Form { entry, whole_matrix, component_value, component_list } form = Form::entry;
   std::vector<int> parameters;  ///< the parameter (entry, component value) or parameters (list)
   double times = 1.0;           ///< entry = times × value
   ModelMatrix matrix = ModelMatrix::Q;
-  std::string layout;           ///< whole_matrix: "rows", "diagonal" or "vector"
+  std::string layout;  ///< whole_matrix: "rows", "diagonal" or "vector"
 };
 
 /// A model file with "estimate" markers, ready to fit.
 struct ModelTemplate {
-  StateSpaceModel model;    ///< starting values (or placeholders, see FreeParameter::start) in place of markers
-  EstimationSpec spec;      ///< what is free
-  std::string file_name;    ///< as given, for messages
+  StateSpaceModel model;  ///< starting values (or placeholders, see FreeParameter::start) in place of markers
+  EstimationSpec spec;    ///< what is free
+  std::string file_name;  ///< as given, for messages
   std::string source_text;  ///< the file's text, to write the fitted model in the user's own layout
   std::vector<FittedValuePlace> places;
 };

@@ -25,32 +25,32 @@ namespace statewise {
 
 /// Which estimator to run.
 enum class FitMethod {
-  em,    ///< EM only (refused when some parameter has no closed-form EM update)
-  mle,   ///< L-BFGS on the log-likelihood, after FitOptions::em_steps EM steps when EM applies
+  em,         ///< EM only (refused when some parameter has no closed-form EM update)
+  mle,        ///< L-BFGS on the log-likelihood, after FitOptions::em_steps EM steps when EM applies
   automatic,  ///< EM steps, then L-BFGS to finish; L-BFGS alone when EM does not apply
 };
 
 /// Settings of fit_model. The defaults suit logs of a few hundred to a few hundred thousand rows.
 struct FitOptions {
   FitMethod method = FitMethod::automatic;
-  int em_steps = 10;              ///< EM steps before L-BFGS for mle and automatic, when EM applies (0 = none)
-  int max_em_iterations = 2000;   ///< limit for method em
-  int max_mle_iterations = 500;   ///< L-BFGS iterations
+  int em_steps = 10;             ///< EM steps before L-BFGS for mle and automatic, when EM applies (0 = none)
+  int max_em_iterations = 2000;  ///< limit for method em
+  int max_mle_iterations = 500;  ///< L-BFGS iterations
   /// EM stops when one step raises the log-likelihood by less than em_tolerance × (1 + |log L|).
   double em_tolerance = 1e-10;
   /// L-BFGS stops when the norm of the gradient of -log L / (number of values), on the search
   /// scale, is below this (or when 3 iterations gain less than 1e-13 relative).
   double gradient_tolerance = 1e-7;
-  bool standard_errors = true;    ///< compute the numerical Hessian
-  bool keep_em_trace = false;     ///< record the log-likelihood before every EM step (FitResult::em_trace)
+  bool standard_errors = true;  ///< compute the numerical Hessian
+  bool keep_em_trace = false;   ///< record the log-likelihood before every EM step (FitResult::em_trace)
 };
 
 /// How a fit ended.
 enum class FitStatus {
   converged,        ///< the stopping rule was met
   iteration_limit,  ///< the iteration limit was reached first; the best model so far is returned
-  stalled,          ///< the optimizer could not improve further before the stopping rule (e.g. a flat likelihood)
-  failed,           ///< no usable starting point: the log-likelihood could not be computed
+  stalled,  ///< the optimizer could not improve further before the stopping rule (e.g. a flat likelihood)
+  failed,   ///< no usable starting point: the log-likelihood could not be computed
 };
 
 /// A plain-words name of a status: "converged", "iteration_limit", "stalled", "failed".
@@ -72,17 +72,17 @@ struct FitResult {
   std::string message;                       ///< what happened, in words
   StateSpaceModel model;                     ///< the fitted model (the best one found)
   std::vector<ParameterEstimate> estimates;  ///< one per free parameter, in spec order
-  double log_likelihood = 0.0;               ///< log L (diffuse log L_d when some states are diffuse) of `model`
-  int parameters = 0;                        ///< number of estimated parameters, k
-  int diffuse_states = 0;                    ///< number of diffuse initial states, q
-  std::size_t observed_values = 0;           ///< non-missing values, N
-  double aic = 0.0;                          ///< -2 log L + 2 (k + q)
-  double bic = 0.0;                          ///< -2 log L + (k + q) log N
-  std::string method;                        ///< "em", "mle" or "em+mle": what actually ran ("none" with nothing to estimate)
-  int em_iterations = 0;                     ///< EM steps taken
-  int mle_iterations = 0;                    ///< L-BFGS iterations taken
-  std::vector<double> em_trace;              ///< log L before each EM step and after the last (when asked)
-  std::vector<std::string> warnings;         ///< plain sentences
+  double log_likelihood = 0.0;      ///< log L (diffuse log L_d when some states are diffuse) of `model`
+  int parameters = 0;               ///< number of estimated parameters, k
+  int diffuse_states = 0;           ///< number of diffuse initial states, q
+  std::size_t observed_values = 0;  ///< non-missing values, N
+  double aic = 0.0;                 ///< -2 log L + 2 (k + q)
+  double bic = 0.0;                 ///< -2 log L + (k + q) log N
+  std::string method;      ///< "em", "mle" or "em+mle": what actually ran ("none" with nothing to estimate)
+  int em_iterations = 0;   ///< EM steps taken
+  int mle_iterations = 0;  ///< L-BFGS iterations taken
+  std::vector<double> em_trace;       ///< log L before each EM step and after the last (when asked)
+  std::vector<std::string> warnings;  ///< plain sentences
 };
 
 /// Why EM cannot update every free parameter in closed form (e.g. a variance tied to a fixed
@@ -91,7 +91,8 @@ std::string em_unavailable_reason(const ModelTemplate& model_template);
 
 /// Fits the free parameters of `model_template` to `series` (rows one model step apart).
 /// Parameters without a "start" begin from values chosen from the data (docs/algorithms.md).
-FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries& series, const FitOptions& options);
+FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries& series,
+                    const FitOptions& options);
 
 /// The JSON report of a fit (keys documented in docs/cli.md), ending with a newline.
 std::string write_fit_report_json(const FitResult& result, const std::string& model_path,

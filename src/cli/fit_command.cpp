@@ -1,14 +1,14 @@
 // `statewise fit`: estimates the parameters marked "estimate" in one model file and writes the
 // fitted model file, or fits several model files to the same log and ranks them by AIC and BIC.
 
+#include <unistd.h>
+
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <iostream>
-#include <sstream>
-#include <unistd.h>
-
 #include <nlohmann/json.hpp>
+#include <sstream>
 
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
@@ -29,15 +29,16 @@ FitMethod parse_method(const std::string& text) {
   if (text == "em") return FitMethod::em;
   if (text == "mle") return FitMethod::mle;
   if (text == "auto") return FitMethod::automatic;
-  raise_input_error({"--method", 0, 0, ""},
-                    "expected em, mle or auto, got \"" + text + "\"" + did_you_mean(text, {"em", "mle", "auto"}));
+  raise_input_error({"--method", 0, 0, ""}, "expected em, mle or auto, got \"" + text + "\"" +
+                                                did_you_mean(text, {"em", "mle", "auto"}));
 }
 
 std::string read_standard_input() {
   std::string text;
   char buffer[1 << 16];
   ssize_t got = 0;
-  while ((got = ::read(STDIN_FILENO, buffer, sizeof buffer)) > 0) text.append(buffer, static_cast<std::size_t>(got));
+  while ((got = ::read(STDIN_FILENO, buffer, sizeof buffer)) > 0)
+    text.append(buffer, static_cast<std::size_t>(got));
   return text;
 }
 
@@ -73,7 +74,8 @@ void print_summary(const FittedModel& fitted) {
       text << " (standard error " << format_number(e.standard_error, 3) << ")";
     text << "\n";
   }
-  for (const auto& warning : r.warnings) text << "statewise: warning: " << fitted.path << ": " << warning << "\n";
+  for (const auto& warning : r.warnings)
+    text << "statewise: warning: " << fitted.path << ": " << warning << "\n";
   std::fflush(stdout);
   std::cerr << text.str();
 }
@@ -91,20 +93,22 @@ std::string ranking_table(const std::vector<FittedModel>& fitted) {
   const double best_aic = fitted[order[0]].result.aic, best_bic = [&] {
     double best = INFINITY;
     for (const auto& f : fitted)
-      if (f.result.status != FitStatus::failed && std::isfinite(f.result.bic)) best = std::min(best, f.result.bic);
+      if (f.result.status != FitStatus::failed && std::isfinite(f.result.bic))
+        best = std::min(best, f.result.bic);
     return best;
   }();
-  std::vector<std::vector<std::string>> rows = {
-      {"rank", "model", "log_likelihood", "parameters", "diffuse", "aic", "delta_aic", "bic", "delta_bic", "status"}};
+  std::vector<std::vector<std::string>> rows = {{"rank", "model", "log_likelihood", "parameters", "diffuse",
+                                                 "aic", "delta_aic", "bic", "delta_bic", "status"}};
   for (std::size_t rank = 0; rank < order.size(); ++rank) {
     const FittedModel& f = fitted[order[rank]];
     const FitResult& r = f.result;
     const bool usable = r.status != FitStatus::failed;
     rows.push_back({std::to_string(rank + 1), f.path, usable ? format_number(r.log_likelihood, 10) : "-",
                     std::to_string(r.parameters), std::to_string(r.diffuse_states),
-                    usable ? format_number(r.aic, 10) : "-", usable ? format_number(r.aic - best_aic, 4) : "-",
-                    usable ? format_number(r.bic, 10) : "-", usable ? format_number(r.bic - best_bic, 4) : "-",
-                    status_name(r.status)});
+                    usable ? format_number(r.aic, 10) : "-",
+                    usable ? format_number(r.aic - best_aic, 4) : "-",
+                    usable ? format_number(r.bic, 10) : "-",
+                    usable ? format_number(r.bic - best_bic, 4) : "-", status_name(r.status)});
   }
   std::vector<std::size_t> width(rows[0].size(), 0);
   for (const auto& row : rows)
@@ -153,7 +157,8 @@ int run_fit(const FitCommandOptions& options) {
     if (fit_options.method == FitMethod::em) {
       const std::string reason = em_unavailable_reason(f.model_template);
       if (!reason.empty())
-        raise_input_error({path, 0, 0, ""}, "--method em cannot fit this model: " + reason + "; use --method mle or auto");
+        raise_input_error({path, 0, 0, ""},
+                          "--method em cannot fit this model: " + reason + "; use --method mle or auto");
     }
     CsvReader reader = from_stdin && options.model_paths.size() > 1
                            ? CsvReader::from_string(kept_input, "<stdin>", csv)
@@ -161,10 +166,12 @@ int run_fit(const FitCommandOptions& options) {
     ObservationStream stream(reader, f.model_template.model);
     const ObservationSeries series = read_series(stream, f.model_template.model);
     f.rows = series.rows();
-    if (series.rows() < 2) raise_input_error({reader.display_name(), 0, 0, ""}, "a fit needs at least two data rows");
+    if (series.rows() < 2)
+      raise_input_error({reader.display_name(), 0, 0, ""}, "a fit needs at least two data rows");
     if (f.model_template.spec.size() == 0 && !compare)
-      raise_input_error({path, 0, 0, ""}, "nothing is marked \"estimate\"; mark the values to estimate "
-                                          "(docs/model-format.md) or use --compare to score the model as it is");
+      raise_input_error({path, 0, 0, ""},
+                        "nothing is marked \"estimate\"; mark the values to estimate "
+                        "(docs/model-format.md) or use --compare to score the model as it is");
     f.result = fit_model(f.model_template, series, fit_options);
     print_summary(f);
     fitted.push_back(std::move(f));
@@ -177,7 +184,8 @@ int run_fit(const FitCommandOptions& options) {
     } else {
       nlohmann::ordered_json models = nlohmann::ordered_json::array();
       for (const auto& f : fitted)
-        models.push_back(nlohmann::ordered_json::parse(write_fit_report_json(f.result, f.path, options.input_path, f.rows)));
+        models.push_back(nlohmann::ordered_json::parse(
+            write_fit_report_json(f.result, f.path, options.input_path, f.rows)));
       text = nlohmann::ordered_json{{"command", "fit"}, {"models", models}}.dump(2) + "\n";
     }
     write_whole_file(options.report_path, text, options.input_path);
@@ -200,8 +208,10 @@ int run_fit(const FitCommandOptions& options) {
   }
 
   const FittedModel& f = fitted[0];
-  if (f.result.status == FitStatus::failed) throw NumericalFailure{f.path + ": the fit failed: " + f.result.message};
-  write_whole_file(options.output_path, write_fitted_model(f.model_template, f.result.model), options.input_path);
+  if (f.result.status == FitStatus::failed)
+    throw NumericalFailure{f.path + ": the fit failed: " + f.result.message};
+  write_whole_file(options.output_path, write_fitted_model(f.model_template, f.result.model),
+                   options.input_path);
   return kExitSuccess;
 }
 

@@ -4,10 +4,9 @@
 // (diffuse.cpp). The order is: parse the document, expand "components" into plain matrices, then
 // (for `statewise fit` only) replace "estimate" markers by starting values, then read the matrices.
 
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
-
-#include <nlohmann/json.hpp>
 
 #include "detail/json_util.h"
 #include "statewise/model.h"
