@@ -124,6 +124,12 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
   if (!model.diffuse.empty() && static_cast<Eigen::Index>(model.diffuse.size()) != n)
     raise_input_error({file_name, 0, 0, "initial.diffuse"},
                       "expected one flag per state (" + std::to_string(n) + "), got " + std::to_string(model.diffuse.size()));
+  for (Eigen::Index i = 0; i < static_cast<Eigen::Index>(model.diffuse.size()); ++i)
+    if (model.diffuse[static_cast<std::size_t>(i)] &&
+        (model.initial_mean(i) != 0.0 || model.initial_covariance.row(i).any() || model.initial_covariance.col(i).any()))
+      raise_input_error({file_name, 0, 0, "initial"},
+                        "the diffuse state \"" + model.state_names[static_cast<std::size_t>(i)] +
+                            "\" has a prior mean or covariance; a diffuse state has none, so its entries must be zero");
   std::set<std::string> columns;
   for (const auto& name : model.observation_names) columns.insert(name);
   for (const auto& name : model.input_names)

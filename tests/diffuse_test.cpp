@@ -181,3 +181,11 @@ TEST_CASE("a diffuse state no channel sees is reported unresolved, not as an err
   CHECK_FALSE(exact.diffuse_resolved);
   CHECK(exact.diffuse_rows == 6);
 }
+
+TEST_CASE("a diffuse state given a prior is refused, naming the state") {
+  StateSpaceModel model = trend_two_probes(true);
+  model.initial_covariance(1, 1) = 3.0;
+  CHECK_THROWS_WITH(validate_model(model, "model.json"),
+                    "model.json: initial: the diffuse state \"slope\" has a prior mean or covariance; a diffuse "
+                    "state has none, so its entries must be zero");
+}

@@ -67,11 +67,11 @@ class KalmanFilter {
   /// Moves the state one transition ahead: x = A x + B u, P = A P A' + Q.
   void predict(const Transition& transition, const double* previous_inputs);
 
-  /// Updates with one row of m values (NaN = missing). During the exact diffuse phase the row is
-  /// processed by the univariate diffuse update (statewise/diffuse.h) instead; channels whose
-  /// prediction still has a diffuse part get a NaN innovation, and the row's nis is NaN with
-  /// `observed` 0 when any channel has, so that diagnostics count only proper innovations. Channels present are used jointly; a row with
-  /// none is a pure prediction. Uses the Joseph form
+  /// Updates with one row of m values (NaN = missing). Channels present are used jointly; a row with
+  /// none is a pure prediction. During the exact diffuse phase the row goes through the univariate
+  /// diffuse update (statewise/diffuse.h) instead: channels whose prediction still has a diffuse
+  /// part get a NaN innovation, and the row's nis is NaN with `observed` 0 when any channel has, so
+  /// that diagnostics count only proper innovations. Uses the Joseph form
   /// P = (I - K C) P (I - K C)' + K R K' (Bucy and Joseph, Filtering for Stochastic Processes, 1968;
   /// see also Simon, Optimal State Estimation, 2006, section 5.1), kept symmetric.
   /// On a non-ok status the state is left as it was before the call.
