@@ -183,6 +183,12 @@ Eigen::VectorXd to_natural(const EstimationSpec& spec, const Eigen::VectorXd& th
   return values;
 }
 
+std::size_t observed_count(const ObservationSeries& series) {
+  std::size_t count = 0;
+  for (const double value : series.values) count += std::isnan(value) ? 0 : 1;
+  return count;
+}
+
 // ---- Likelihood ---------------------------------------------------------------------------------
 
 struct Evaluator {
@@ -841,9 +847,7 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
     // the log-likelihood cannot be computed simply halves the step.
     LBFGSpp::LBFGSSolver<double, LBFGSpp::LineSearchBacktracking> solver(parameters);
     Objective objective{spec, evaluator,
-                        static_cast<double>(std::max<std::size_t>(
-                            1, exact_log_likelihood(result.model, series).observed_values)),
-                        theta};
+                        static_cast<double>(std::max<std::size_t>(1, observed_count(series))), theta};
     double f = 0.0;
     // LBFGSpp throws when its line search cannot progress: near the maximum that is the limit of the
     // numerical gradient's precision, elsewhere a region where the curvature changes fast. Restart
@@ -904,7 +908,7 @@ FitResult fit_model(const ModelTemplate& model_template, const ObservationSeries
   spec.apply(values, result.model);
   const SeriesLikelihood final_likelihood = exact_log_likelihood(result.model, series);
   result.log_likelihood = final_likelihood.log_likelihood;
-  result.observed_values = final_likelihood.observed_values;
+  result.observed_values = observed_count(series);
   if (!final_likelihood.diffuse_resolved)
     result.warnings.push_back("some diffuse initial states are not determined by the data");
   const double penalty = static_cast<double>(result.parameters + result.diffuse_states);
