@@ -6,6 +6,7 @@
 // limit is reached to O(1/kappa).
 
 #include "statewise/diffuse.h"
+#include "statewise/output_table.h"
 
 #include <doctest/doctest.h>
 
@@ -188,4 +189,30 @@ TEST_CASE("a diffuse state given a prior is refused, naming the state") {
   CHECK_THROWS_WITH(validate_model(model, "model.json"),
                     "model.json: initial: the diffuse state \"slope\" has a prior mean or covariance; a diffuse "
                     "state has none, so its entries must be zero");
+}
+
+TEST_CASE("filter output: a state still undetermined has standard deviation inf, its channel no innovation") {
+  // A local linear trend seen by one channel: after the first value the level is known but the
+  // slope is not (one value cannot tell a slope); after the second both are.
+  StateSpaceModel model = trend_two_probes(true);
+  model.observation_names = {"a"};
+  model.C = model.C.topRows(1).eval();
+  model.R = Eigen::MatrixXd::Constant(1, 1, 1.0);
+  validate_model(model, "test");
+  KalmanFilter filter(model);
+  InnovationRecord record = make_innovation_record(1);
+  const EstimateTableWriter writer(model, EstimateKind::filtered, TableFormat{});
+  std::string rows;
+  const double first = 3.0, second = 4.0;
+  REQUIRE(filter.update(&first, record) == StepStatus::ok);
+  REQUIRE(filter.diffuse_covariance() != nullptr);
+  writer.append_row(rows, "", &first, filter.mean(), filter.covariance(), &record, filter.diffuse_covariance());
+  filter.predict(model_transition(model), nullptr);
+  REQUIRE(filter.update(&second, record) == StepStatus::ok);
+  CHECK(filter.diffuse_covariance() == nullptr);
+  writer.append_row(rows, "", &second, filter.mean(), filter.covariance(), &record, filter.diffuse_covariance());
+  // Columns: level, level_sd, slope, slope_sd, a_est, a_sd, a_filled, a_imputed, a_innov, a_z.
+  const std::string row0 = rows.substr(0, rows.find('\n'));
+  CHECK(row0.rfind("3,1,0,inf,3,1,3,0,,") == 0);
+  CHECK(rows.substr(rows.find('\n') + 1).find("inf") == std::string::npos);
 }
