@@ -265,3 +265,37 @@ TEST_CASE("EM is refused, with the reason, where it has no closed-form update") 
   CHECK(em_unavailable_reason(model) ==
         "components[1].coefficients[0]: the state row 1 has no Q noise, so EM cannot update its entries");
 }
+
+TEST_CASE("EM's update of A and B entries reaches the maximum L-BFGS finds") {
+  // Both maximize the same exact log-likelihood (first principles): EM through its constrained
+  // regression of x_t on (x_{t-1}, u_{t-1}), L-BFGS directly. An AR(1) state driven by an input.
+  const std::string text = R"({"observations": ["y"], "inputs": ["u"], "states": ["x"],
+    "A": "estimate", "B": "estimate", "C": 1, "Q": "estimate", "R": "estimate",
+    "initial": {"mean": 0, "covariance": 10}})";
+  const ModelTemplate model = parse_model_template(text, "ab.json");
+  testing::DeterministicRandom random{17};
+  ObservationSeries series;
+  series.channels = 1;
+  series.input_count = 1;
+  double x = 0.0;
+  for (int t = 0; t < 300; ++t) {
+    const double u = random.uniform() < 0.5 ? 1.0 : 0.0;
+    series.values.push_back(x + 0.5 * random.normal());
+    series.inputs.push_back(u);
+    series.lines.push_back(static_cast<std::size_t>(t) + 2);
+    x = 0.8 * x + 1.5 * u + random.normal();
+  }
+  FitOptions options;
+  options.method = FitMethod::em;
+  const FitResult em = fit_model(model, series, options);
+  options.method = FitMethod::mle;
+  options.em_steps = 0;
+  const FitResult mle = fit_model(model, series, options);
+  REQUIRE(em.status == FitStatus::converged);
+  REQUIRE(mle.status == FitStatus::converged);
+  CHECK(em.log_likelihood == doctest::Approx(mle.log_likelihood).epsilon(1e-7));
+  for (std::size_t p = 0; p < 4; ++p) {
+    INFO(em.estimates[p].name << ": EM " << em.estimates[p].value << ", L-BFGS " << mle.estimates[p].value);
+    CHECK(em.estimates[p].value == doctest::Approx(mle.estimates[p].value).epsilon(2e-3));
+  }
+}
