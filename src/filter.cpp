@@ -4,6 +4,7 @@
 #include <numbers>
 
 #include "detail/small_cholesky.h"
+#include "statewise/diffuse.h"
 
 namespace statewise {
 
@@ -87,11 +88,15 @@ KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model) {
 void KalmanFilter::reset() {
   mean_ = model_.initial_mean;
   covariance_ = model_.initial_covariance;
+  diffuse_phase_ = model_.has_diffuse_states();
+  diffuse_ = initial_diffuse_covariance(model_);
 }
 
 void KalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance) {
   mean_ = mean;
   covariance_ = covariance;
+  diffuse_phase_ = false;
+  diffuse_.setZero();
 }
 
 void KalmanFilter::predict(const Transition& transition, const double* previous_inputs) {
@@ -99,9 +104,52 @@ void KalmanFilter::predict(const Transition& transition, const double* previous_
                   predicted_workspace_);
   mean_.swap(predicted_mean_);
   covariance_.swap(predicted_covariance_);
+  if (diffuse_phase_) {
+    // P_inf = A P_inf A' (the diffuse part gets no noise).
+    product_.noalias() = transition.A * diffuse_;
+    diffuse_.noalias() = product_ * transition.A.transpose();
+    symmetrize(diffuse_);
+  }
+}
+
+StepStatus KalmanFilter::diffuse_update(const double* values, InnovationRecord& record) {
+  const int m = static_cast<int>(model_.C.rows());
+  // Per-channel innovations against the current mean: unbounded where the prediction has a diffuse part.
+  bool any_diffuse = false;
+  int present = 0;
+  for (int c = 0; c < m; ++c) {
+    record.innovation(c) = kNaN;
+    record.innovation_sd(c) = kNaN;
+    if (std::isnan(values[c])) continue;
+    ++present;
+    const double reach = model_.C.row(c) * diffuse_ * model_.C.row(c).transpose();
+    if (reach > kDiffuseTolerance * model_.C.row(c).squaredNorm()) {
+      any_diffuse = true;
+      continue;
+    }
+    record.innovation(c) = values[c] - model_.C.row(c).dot(mean_);
+    record.innovation_sd(c) =
+        std::sqrt(std::max(0.0, model_.C.row(c) * covariance_ * model_.C.row(c).transpose() + model_.R(c, c)));
+  }
+  Eigen::VectorXd mean = mean_;
+  Eigen::MatrixXd covariance = covariance_, diffuse = diffuse_;
+  const UnivariateRowResult row = univariate_update(model_, values, mean, covariance, &diffuse, nullptr);
+  if (row.status != StepStatus::ok) return row.status;
+  mean_ = mean;
+  covariance_ = covariance;
+  diffuse_ = diffuse;
+  record.observed = any_diffuse ? 0 : present;
+  record.nis = any_diffuse || present == 0 ? kNaN : row.nis;
+  record.log_likelihood = row.log_likelihood;
+  if (diffuse_.cwiseAbs().maxCoeff() <= kDiffuseTolerance) {
+    diffuse_phase_ = false;
+    diffuse_.setZero();
+  }
+  return StepStatus::ok;
 }
 
 StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) {
+  if (diffuse_phase_) return diffuse_update(values, record);
   const int m = static_cast<int>(model_.C.rows());
   int k = 0;
   for (int c = 0; c < m; ++c) {

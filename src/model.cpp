@@ -15,6 +15,7 @@
 
 #include "statewise/error.h"
 #include "detail/json_util.h"
+#include "detail/model_json.h"
 
 namespace statewise {
 
@@ -25,7 +26,7 @@ using detail::JsonContext;
 
 const std::vector<std::string> kTopLevelKeys = {"version", "description", "states", "observations", "inputs",
                                                 "A",       "B",           "C",      "Q",            "R",
-                                                "initial", "time",        "domain", "step"};
+                                                "initial", "time",        "domain", "step",       "components"};
 const std::vector<std::string> kDomainNames = {"discrete", "continuous"};
 
 std::vector<std::string> parse_name_list(const JsonContext& context, const json& value, const std::string& key) {
@@ -150,6 +151,15 @@ void validate_model(const StateSpaceModel& model, const std::string& file_name) 
   check_covariance(model.Q, file_name, "Q");
   check_covariance(model.R, file_name, "R");
   check_covariance(model.initial_covariance, file_name, "initial.covariance");
+  if (!model.diffuse.empty() && static_cast<Eigen::Index>(model.diffuse.size()) != n)
+    raise_input_error({file_name, 0, 0, "initial.diffuse"},
+                      "expected one flag per state (" + std::to_string(n) + "), got " + std::to_string(model.diffuse.size()));
+  for (Eigen::Index i = 0; i < static_cast<Eigen::Index>(model.diffuse.size()); ++i)
+    if (model.diffuse[static_cast<std::size_t>(i)] &&
+        (model.initial_mean(i) != 0.0 || model.initial_covariance.row(i).any() || model.initial_covariance.col(i).any()))
+      raise_input_error({file_name, 0, 0, "initial"},
+                        "the diffuse state \"" + model.state_names[static_cast<std::size_t>(i)] +
+                            "\" has a prior mean or covariance; a diffuse state has none, so its entries must be zero");
   std::set<std::string> columns;
   for (const auto& name : model.observation_names) columns.insert(name);
   for (std::size_t i = 0; i < model.input_names.size(); ++i)
@@ -183,11 +193,16 @@ const char* domain_name(TimeDomain domain) {
 }
 
 StateSpaceModel parse_model(std::string_view json_text, const std::string& file_name) {
-  const json root = detail::parse_json_document(json_text, file_name);
+  return detail::parse_model_json(detail::parse_json_document(json_text, file_name), file_name);
+}
+
+StateSpaceModel detail::parse_model_json(nlohmann::json root, const std::string& file_name) {
   const JsonContext context{file_name};
   if (!root.is_object())
     context.fail("", "expected a JSON object with the model's keys, got " + detail::describe(root));
   detail::reject_unknown_keys(context, root, "", kTopLevelKeys);
+  // Building blocks (docs/model-format.md, "Components") become plain matrices first.
+  if (root.contains("components")) root = detail::expand_components(context, root).root;
 
   if (root.contains("version")) {
     const json& version = root["version"];
@@ -232,12 +247,23 @@ StateSpaceModel parse_model(std::string_view json_text, const std::string& file_
     const json& initial = root["initial"];
     if (!initial.is_object())
       context.fail("initial", "expected an object with \"mean\" and \"covariance\", got " + detail::describe(initial));
-    detail::reject_unknown_keys(context, initial, "initial", {"mean", "covariance"});
+    detail::reject_unknown_keys(context, initial, "initial", {"mean", "covariance", "diffuse"});
     if (initial.contains("mean"))
       model.initial_mean = detail::parse_vector(context, initial["mean"], "initial.mean", n, "one value per state");
     if (initial.contains("covariance"))
       model.initial_covariance =
           parse_covariance(context, initial["covariance"], "initial.covariance", n, "states × states");
+    if (initial.contains("diffuse")) {
+      model.diffuse = detail::parse_diffuse_states(context, initial["diffuse"], model.state_names);
+      // A diffuse state has no prior: its mean and covariance entries are unused and set to zero.
+      for (Eigen::Index i = 0; i < n; ++i)
+        if (model.diffuse[static_cast<std::size_t>(i)]) {
+          model.initial_mean(i) = 0.0;
+          model.initial_covariance.row(i).setZero();
+          model.initial_covariance.col(i).setZero();
+        }
+      if (!model.has_diffuse_states()) model.diffuse.clear();
+    }
   }
 
   if (root.contains("time")) {
@@ -312,6 +338,12 @@ std::string write_model(const StateSpaceModel& model) {
   root["R"] = detail::matrix_to_json(model.R);
   root["initial"] = detail::OrderedJson{{"mean", detail::vector_to_json(model.initial_mean)},
                      {"covariance", detail::matrix_to_json(model.initial_covariance)}};
+  if (model.has_diffuse_states()) {
+    std::vector<std::string> names;
+    for (std::size_t i = 0; i < model.diffuse.size(); ++i)
+      if (model.diffuse[i]) names.push_back(model.state_names[i]);
+    root["initial"]["diffuse"] = names;
+  }
   return detail::dump_json_pretty(root);
 }
 

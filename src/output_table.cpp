@@ -2,6 +2,9 @@
 
 #include <charconv>
 #include <cmath>
+#include <limits>
+
+#include "statewise/diffuse.h"
 
 #include "statewise/statistics.h"
 
@@ -74,7 +77,10 @@ void EstimateTableWriter::append_header(std::string& out) const {
 void EstimateTableWriter::append_row(std::string& out, std::string_view time_text, const double* values,
                                      const Eigen::Ref<const Eigen::VectorXd>& mean,
                                      const Eigen::Ref<const Eigen::MatrixXd>& covariance,
-                                     const InnovationRecord* innovations) const {
+                                     const InnovationRecord* innovations,
+                                     const Eigen::MatrixXd* diffuse_covariance) const {
+  constexpr double kInfinity = std::numeric_limits<double>::infinity();
+
   const char d = format_.delimiter;
   const int digits = format_.digits;
   bool first = true;
@@ -90,14 +96,19 @@ void EstimateTableWriter::append_row(std::string& out, std::string_view time_tex
     separator();
     append_number(out, mean(i), digits);
     out += d;
-    append_number(out, std::sqrt(std::max(covariance(i, i), 0.0)), digits);
+    const bool unbounded = diffuse_covariance != nullptr && (*diffuse_covariance)(i, i) > kDiffuseTolerance;
+    append_number(out, unbounded ? kInfinity : std::sqrt(std::max(covariance(i, i), 0.0)), digits);
   }
   // Channel estimate C x and its standard deviation sqrt(diag(C P C')).
   channel_mean_.noalias() = model_.C.lazyProduct(mean);
   covariance_times_ct_.noalias() = covariance.lazyProduct(model_.C.transpose());
   for (Eigen::Index c = 0; c < channel_mean_.size(); ++c) {
     const double estimate = channel_mean_(c);
-    const double variance = model_.C.row(c).dot(covariance_times_ct_.col(c));
+    double variance = model_.C.row(c).dot(covariance_times_ct_.col(c));
+    if (diffuse_covariance != nullptr &&
+        model_.C.row(c) * (*diffuse_covariance) * model_.C.row(c).transpose() >
+            kDiffuseTolerance * model_.C.row(c).squaredNorm())
+      variance = kInfinity;
     const bool missing = std::isnan(values[c]);
     separator();
     append_number(out, estimate, digits);

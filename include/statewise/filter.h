@@ -67,7 +67,10 @@ class KalmanFilter {
   void predict(const Transition& transition, const double* previous_inputs);
 
   /// Updates with one row of m values (NaN = missing). Channels present are used jointly; a row with
-  /// none is a pure prediction. Uses the Joseph form
+  /// none is a pure prediction. During the exact diffuse phase the row goes through the univariate
+  /// diffuse update (statewise/diffuse.h) instead: channels whose prediction still has a diffuse
+  /// part get a NaN innovation, and the row's nis is NaN with `observed` 0 when any channel has, so
+  /// that diagnostics count only proper innovations. Uses the Joseph form
   /// P = (I - K C) P (I - K C)' + K R K' (Bucy and Joseph, Filtering for Stochastic Processes, 1968;
   /// see also Simon, Optimal State Estimation, 2006, section 5.1), kept symmetric.
   /// On a non-ok status the state is left as it was before the call.
@@ -75,8 +78,12 @@ class KalmanFilter {
 
   /// Current mean (filtered after update, predicted after predict).
   const Eigen::VectorXd& mean() const { return mean_; }
-  /// Current covariance.
+  /// Current covariance (its finite part P_* during the exact diffuse phase).
   const Eigen::MatrixXd& covariance() const { return covariance_; }
+  /// During the exact diffuse phase (statewise/diffuse.h), the diffuse part P_inf of the covariance:
+  /// states and channels it reaches have unbounded variance. Null once every diffuse state is
+  /// resolved, and always for models without diffuse states.
+  const Eigen::MatrixXd* diffuse_covariance() const { return diffuse_phase_ ? &diffuse_ : nullptr; }
   /// The model the filter runs.
   const StateSpaceModel& model() const { return model_; }
 
@@ -94,6 +101,9 @@ class KalmanFilter {
   Eigen::MatrixXd predicted_covariance_;
   std::vector<Workspace> workspaces_;  // index k = number of observed channels
   std::vector<int> observed_index_;
+  Eigen::MatrixXd diffuse_;     // P_inf while diffuse_phase_
+  bool diffuse_phase_ = false;
+  StepStatus diffuse_update(const double* values, InnovationRecord& record);
 };
 
 /// Creates an InnovationRecord sized for m channels.

@@ -46,6 +46,17 @@ struct StateSpaceModel {
   /// "step": seconds per model step of a discrete model, > 0; 0 = none (each row is one step). A
   /// gap of k steps between rows is propagated as k steps. Only for discrete models with a time column.
   double step = 0.0;
+  /// n flags, or empty for none: true where the state's initial value is unknown (exact diffuse
+  /// initialization, Durbin and Koopman 2012, chapter 5). A diffuse state's entries of initial_mean
+  /// and initial_covariance (rows and columns) are zero and unused.
+  std::vector<bool> diffuse;
+
+  /// True when at least one state is diffuse.
+  bool has_diffuse_states() const {
+    for (const bool flag : diffuse)
+      if (flag) return true;
+    return false;
+  }
 
   /// Number of states n.
   int state_count() const { return static_cast<int>(A.rows()); }

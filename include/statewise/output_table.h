@@ -46,10 +46,12 @@ class EstimateTableWriter {
   /// Appends the header line.
   void append_header(std::string& out) const;
   /// Appends one row. `values` are the row's m measured values (NaN = missing); `innovations` is
-  /// required for EstimateKind::filtered and ignored otherwise.
+  /// required for EstimateKind::filtered and ignored otherwise. `diffuse_covariance` (may be null) is
+  /// the diffuse part P_inf of the covariance during the exact diffuse phase: the standard deviation
+  /// of a state or channel it reaches is unbounded and written as `inf`.
   void append_row(std::string& out, std::string_view time_text, const double* values,
                   const Eigen::Ref<const Eigen::VectorXd>& mean, const Eigen::Ref<const Eigen::MatrixXd>& covariance,
-                  const InnovationRecord* innovations) const;
+                  const InnovationRecord* innovations, const Eigen::MatrixXd* diffuse_covariance = nullptr) const;
 
  private:
   const StateSpaceModel& model_;

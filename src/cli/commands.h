@@ -66,6 +66,30 @@ int run_forecast(const ForecastOptions& options);
 int run_check(const CheckOptions& options);
 /// `statewise discretize`: writes the equivalent discrete model file for a step of --dt seconds.
 int run_discretize(const DiscretizeOptions& options);
+/// Options of `statewise fit`.
+struct FitCommandOptions {
+  std::vector<std::string> model_paths;    // -m/--model, repeatable
+  std::string input_path = "-";            // positional; "-" = standard input
+  std::string output_path = "-";           // -o/--output: the fitted model file
+  std::string report_path;                 // --report; empty = none
+  std::string method = "auto";             // --method em|mle|auto
+  int em_steps = -1;                       // --em-steps; -1 = the method's default
+  int max_iterations = 0;                  // --max-iterations; 0 = the defaults
+  bool compare = false;                    // --compare
+  std::string delimiter = ",";             // --delimiter (input)
+  std::vector<std::string> missing_tokens;  // --missing, repeatable
+};
+
+/// Options of `statewise expand`.
+struct ExpandCommandOptions {
+  std::string model_path;        // -m/--model
+  std::string output_path = "-";  // -o/--output
+};
+
+/// `statewise fit`: estimates the values marked "estimate"; with several models, ranks them.
+int run_fit(const FitCommandOptions& options);
+/// `statewise expand`: prints a model file with its components written out as plain matrices.
+int run_expand(const ExpandCommandOptions& options);
 
 /// The delimiter option as one character: "," ";" "|" "\t" or "tab".
 char parse_delimiter(const std::string& text);

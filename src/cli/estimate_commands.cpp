@@ -9,6 +9,7 @@
 #include "statewise/csv.h"
 #include "statewise/diagnostics.h"
 #include "statewise/discretize.h"
+#include "statewise/diffuse.h"
 #include "statewise/error.h"
 #include "statewise/filter.h"
 #include "statewise/output_table.h"
@@ -121,7 +122,7 @@ int run_filter(const EstimateOptions& options) {
     accumulator.add(record);
     spacing.add(row);
     writer.append_row(buffer, row.row.time_text, row.row.values.data(), filter.mean(), filter.covariance(),
-                      &record);
+                      &record, filter.diffuse_covariance());
     if (output.interactive()) {
       output.write_buffer(buffer);
       output.flush();
@@ -181,8 +182,24 @@ int run_smooth(const EstimateOptions& options) {
     track.push_back(filter.mean(), filter.covariance());
   }
 
-  // Backward pass, in place.
-  const SmoothStatus smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
+  // Backward pass, in place; the exact diffuse smoother when some states start with no prior.
+  SmoothStatus smoothed;
+  bool diffuse_unresolved = false;
+  if (model.has_diffuse_states()) {
+    if (!schedule.index_of_step.empty())
+      raise_input_error({options.model_path, 0, 0, "initial.diffuse"},
+                        "the exact diffuse smoother needs rows one model step apart, but this log's gaps vary; "
+                        "give the states a proper initial covariance instead of \"diffuse\"");
+    ExactSmoothing exact = exact_smooth(model, series, false);
+    diffuse_unresolved = !exact.likelihood.diffuse_resolved;
+    if (exact.likelihood.status == StepStatus::ok) {
+      track = std::move(exact.track);
+    } else {
+      smoothed = SmoothStatus{false, exact.likelihood.row, describe(exact.likelihood.status), 0};
+    }
+  } else {
+    smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
+  }
   if (!smoothed.ok)
     throw NumericalFailure{row_place(file, series.lines[smoothed.row], series.time_text(smoothed.row)) +
                            ": " + smoothed.message};
@@ -202,6 +219,9 @@ int run_smooth(const EstimateOptions& options) {
     report.warnings.push_back("the predicted covariance was singular on " + std::to_string(smoothed.pseudo_inverse_rows) +
                               " rows; the smoother used a pseudo-inverse there (Q may be zero in some direction)");
   add_timeline_warnings(report, timeline, spacing, options);
+  if (diffuse_unresolved)
+    report.warnings.push_back("the data do not determine every diffuse initial state (no channel sees it); "
+                              "their estimates are not meaningful");
   finish_report(report, accumulator, options);
   return kExitSuccess;
 }

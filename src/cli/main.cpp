@@ -48,6 +48,31 @@ void add_regular_option(CLI::App& command, EstimateOptions& options) {
       "(every channel imputed) where the log has none");
 }
 
+void add_fit_options(CLI::App& command, statewise::cli::FitCommandOptions& options) {
+  command.add_option("-m,--model", options.model_paths,
+                     "Model file with values marked \"estimate\" (repeat it to compare models)")
+      ->required()
+      ->allow_extra_args(false);
+  command.add_option("input", options.input_path, "Log to fit (CSV with a header row); - for standard input")
+      ->capture_default_str();
+  command.add_option("-o,--output", options.output_path, "Where to write the fitted model file; - for standard output")
+      ->capture_default_str();
+  command.add_option("--report", options.report_path, "Write a JSON report of the fit to this file");
+  command.add_option("--method", options.method, "em, mle (L-BFGS) or auto (EM steps, then L-BFGS)")
+      ->capture_default_str();
+  command.add_option("--em-steps", options.em_steps, "EM steps before L-BFGS (auto: 10, mle: 0)")
+      ->check(CLI::Range(0, 100000));
+  command.add_option("--max-iterations", options.max_iterations,
+                     "Iteration limit (EM for --method em, L-BFGS otherwise; defaults 2000 and 500)")
+      ->check(CLI::Range(1, 1000000));
+  command.add_flag("--compare", options.compare, "Rank the models by AIC and BIC in a table on standard output");
+  command.add_option("--delimiter", options.delimiter, "Field separator of the input: one character, or tab")
+      ->capture_default_str();
+  command.add_option("--missing", options.missing_tokens,
+                     "Extra cell text meaning 'no value' (repeatable), e.g. --missing -999")
+      ->allow_extra_args(false);
+}
+
 int report_error(const std::string& message, int code) {
   std::fflush(stdout);
   std::cerr << "statewise: error: " << message << '\n';
@@ -124,6 +149,15 @@ int main(int argc, char** argv) {
                    "Where to write the model; - for standard output")
       ->capture_default_str();
 
+  FitCommandOptions fit_options;
+  CLI::App* fit = app.add_subcommand("fit", "Estimate the values a model file marks \"estimate\" from a log");
+  add_fit_options(*fit, fit_options);
+  ExpandCommandOptions expand_options;
+  CLI::App* expand = app.add_subcommand("expand", "Print a model file with its components as plain matrices");
+  expand->add_option("-m,--model", expand_options.model_path, "Model file (JSON, docs/model-format.md)")->required();
+  expand->add_option("-o,--output", expand_options.output_path, "Where to write it; - for standard output")
+      ->capture_default_str();
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -142,6 +176,8 @@ int main(int argc, char** argv) {
     if (forecast->parsed()) return run_forecast(forecast_options);
     if (check->parsed()) return run_check(check_options);
     if (discretize->parsed()) return run_discretize(discretize_options);
+    if (fit->parsed()) return run_fit(fit_options);
+    if (expand->parsed()) return run_expand(expand_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
   } catch (const NumericalFailure& e) {

@@ -247,7 +247,25 @@ Eigen::Index matrix_rows(const JsonContext& context, const json& value, const st
   context.fail(key, "expected a matrix (a list of rows), got " + describe(value));
 }
 
+bool is_estimate_marker(const json& value) {
+  return (value.is_string() && value.get_ref<const std::string&>() == "estimate") ||
+         (value.is_object() && value.contains("estimate"));
+}
+
+void reject_estimate_marker(const JsonContext& context, const json& value, const std::string& key) {
+  if (!is_estimate_marker(value)) return;
+  // A component's marker is named by its key path; name that, not the entry it expanded into.
+  std::string place = key;
+  if (value.is_object() && value.contains("parameter") && value["parameter"].is_string()) {
+    const std::string parameter = value["parameter"].get<std::string>();
+    place = parameter.rfind("components[", 0) == 0 ? parameter : key + " (parameter \"" + parameter + "\")";
+  }
+  context.fail(place, "is marked \"estimate\"; estimate it first with `statewise fit -m " + context.file_name +
+                          " data.csv -o fitted.json` and use the fitted model file");
+}
+
 double parse_number(const JsonContext& context, const json& value, const std::string& key) {
+  reject_estimate_marker(context, value, key);
   if (!value.is_number()) context.fail(key, "expected a number, got " + describe(value));
   const double number = value.get<double>();
   if (!std::isfinite(number)) context.fail(key, "expected a finite number, got " + value.dump());
@@ -267,6 +285,7 @@ std::string shape_of(const json& value) {
 Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index rows, Eigen::Index cols, const std::string& what) {
   const std::string expected = std::to_string(rows) + "×" + std::to_string(cols) + " matrix (" + what + ")";
+  reject_estimate_marker(context, value, key);
   if (value.is_number()) {
     if (rows != 1 || cols != 1) context.fail(key, "expected a " + expected + ", got a single number");
     return Eigen::MatrixXd::Constant(1, 1, parse_number(context, value, key));
@@ -296,6 +315,7 @@ Eigen::MatrixXd parse_matrix(const JsonContext& context, const json& value, cons
 
 Eigen::VectorXd parse_vector(const JsonContext& context, const json& value, const std::string& key,
                              Eigen::Index size, const std::string& what) {
+  reject_estimate_marker(context, value, key);
   if (value.is_number() && size == 1) return Eigen::VectorXd::Constant(1, parse_number(context, value, key));
   if (!value.is_array() || static_cast<Eigen::Index>(value.size()) != size)
     context.fail(key, "expected a list of " + std::to_string(size) + " numbers (" + what + "), got " + describe(value));

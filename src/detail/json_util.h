@@ -35,6 +35,12 @@ void reject_unknown_keys(const JsonContext& context, const nlohmann::json& objec
 /// Number of rows a matrix value has (1 for a plain number); raises for anything that is not a matrix.
 Eigen::Index matrix_rows(const JsonContext& context, const nlohmann::json& value, const std::string& key);
 
+/// True for an "estimate" marker: the text "estimate" or an object with an "estimate" key.
+bool is_estimate_marker(const nlohmann::json& value);
+
+/// Raises InputError for an "estimate" marker where a number is needed (the model is not fitted yet).
+void reject_estimate_marker(const JsonContext& context, const nlohmann::json& value, const std::string& key);
+
 /// A finite number at `key`; raises otherwise.
 double parse_number(const JsonContext& context, const nlohmann::json& value, const std::string& key);
 
