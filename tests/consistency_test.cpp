@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "simulation.h"
+#include "statewise/screening.h"
 
 using namespace statewise;
 
@@ -177,7 +178,7 @@ TEST_CASE("on data from the true model the tests reject at their nominal 5% rate
       double y[2] = {log.values[static_cast<std::size_t>(2 * t)],
                      log.values[static_cast<std::size_t>(2 * t + 1)]};
       if (gaps.uniform() < 0.1) y[1] = std::nan("");
-      REQUIRE(filter.update(y, record) == StepStatus::ok);
+      if (filter.update(y, record) != StepStatus::ok) FAIL("the filter failed");
       monitor.add(record);
     }
     const ConsistencySummary s = monitor.summary();
@@ -199,4 +200,68 @@ TEST_CASE("on data from the true model the tests reject at their nominal 5% rate
   }
   CHECK(outside / runs == doctest::Approx(0.05).epsilon(0.04));
   CHECK(steps_outside / runs == doctest::Approx(0.05).epsilon(0.04));
+}
+
+TEST_CASE("behind a gate the size tests use the truncated moments and keep their nominal rate") {
+  // Values that pass a gate at P = 0.999 are a truncated sample. Known answers (scipy 1.10.1, with
+  // q1 = chi2.ppf(0.999, 1), q2 = chi2.ppf(0.999, 2)): E[z²] behind a per-channel gate =
+  // chi2.cdf(q1, 3) / chi2.cdf(q1, 1) = 0.9882925078207947; behind a joint gate on two channels
+  // E[NIS] = 2 chi2.cdf(q2, 4) / chi2.cdf(q2, 2) = 1.9861706601021378, so E[z²] is half of it.
+  const StateSpaceModel model = cold_room_model();
+  const Transition transition = model_transition(model);
+  const int runs = 60, rows = 10000;
+  int corrected = 0, nis = 0;
+  double expected_mean_square = 0.0, pooled_sum = 0.0, pooled_count = 0.0;
+  for (int run = 0; run < runs; ++run) {
+    const testing::SimulatedLog log = testing::simulate(model, rows, 7000 + static_cast<std::uint64_t>(run));
+    KalmanFilter filter(model);
+    OutlierGate gate(model, 0.999);
+    GateDecision decision;
+    ConsistencyOptions options;
+    options.gate_probability = 0.999;
+    ConsistencyMonitor monitor(model.observation_names, options);
+    InnovationRecord record = make_innovation_record(2);
+    for (int t = 0; t < rows; ++t) {
+      if (t > 0) filter.predict(transition, nullptr);
+      gate.screen(&log.values[static_cast<std::size_t>(2 * t)], filter.mean(), filter.covariance(), decision);
+      if (filter.update(decision.kept.data(), record) != StepStatus::ok) FAIL("the filter failed");
+      monitor.add(record, decision.rejected.data());
+    }
+    const ConsistencySummary s = monitor.summary();
+    const ChannelConsistency& a = s.channels[0];
+    expected_mean_square = a.z_expected_mean_square;
+    corrected += a.z_mean_square_p_value < 0.05;
+    nis += s.nis.p_value < 0.05;
+    pooled_sum += a.z_mean_square * static_cast<double>(a.used);
+    pooled_count += static_cast<double>(a.used);
+  }
+  CHECK(expected_mean_square == doctest::Approx(0.9882925078207947).epsilon(1e-13));
+  // The pooled mean square of about 600 000 accepted z is the truncated expectation within 4 standard
+  // deviations (Var z² = E[z⁴] - E[z²]² = 2.8381 - 0.9767 = 1.861 by the same identity, scipy:
+  // 3 chi2.cdf(q1, 5) / chi2.cdf(q1, 1) = 2.8381138771995214), and so 6 standard deviations below 1,
+  // the expectation without the gate.
+  const double pooled = pooled_sum / pooled_count;
+  const double sd = std::sqrt(1.861 / pooled_count);
+  INFO("pooled mean square " << pooled << " (sd " << sd << "); test rejections of 60: " << corrected
+                             << ", NIS " << nis);
+  CHECK(std::abs(pooled - 0.9882925078207947) <= 4.0 * sd);
+  // Binomial(60, 0.05): mean 3, P(X >= 11) = 0.0004.
+  CHECK(corrected <= 10);
+  CHECK(nis <= 10);
+
+  StateSpaceModel correlated = model;
+  correlated.R(0, 1) = correlated.R(1, 0) = 0.01;
+  ConsistencyOptions joint;
+  joint.gate_probability = 0.999;
+  joint.gate_per_channel = false;
+  ConsistencyMonitor monitor(correlated.observation_names, joint);
+  InnovationRecord record = make_innovation_record(2);
+  record.innovation << 0.5, -0.5;
+  record.innovation_sd << 1.0, 1.0;
+  record.observed = 2;
+  record.nis = 0.5;
+  monitor.add(record);
+  CHECK(monitor.summary().channels[0].z_expected_mean_square ==
+        doctest::Approx(1.9861706601021378 / 2.0).epsilon(1e-13));
+  CHECK(monitor.summary().nis.expected == doctest::Approx(1.9861706601021378).epsilon(1e-13));
 }
