@@ -95,6 +95,24 @@ void quad_update(QuadMatrix& x, QuadMatrix& P, const QuadMatrix& H, Quad noise_v
     for (int j = 0; j < 3; ++j) P(i, j) -= KHP(i, j);
 }
 
+// The ill-conditioned measurement model of the tests below: P0 = I (3 states), two channels
+// H = [[1, 1, 1], [1, 1, 1 + δ]], R = δ² I, A = I, Q = 2^-20 I.
+StateSpaceModel ill_conditioned_model(double delta) {
+  StateSpaceModel model;
+  model.state_names = {"a", "b", "c"};
+  model.observation_names = {"y1", "y2"};
+  model.A = Eigen::MatrixXd::Identity(3, 3);
+  model.B = Eigen::MatrixXd::Zero(3, 0);
+  model.C.resize(2, 3);
+  model.C << 1, 1, 1, 1, 1, 1 + delta;
+  model.Q = std::ldexp(1.0, -20) * Eigen::MatrixXd::Identity(3, 3);
+  model.R = delta * delta * Eigen::MatrixXd::Identity(2, 2);
+  model.initial_mean = Eigen::VectorXd::Zero(3);
+  model.initial_covariance = Eigen::MatrixXd::Identity(3, 3);
+  validate_model(model, "test");
+  return model;
+}
+
 }  // namespace
 
 TEST_CASE("square-root filter agrees with the plain filter to 1e-9 on a well-conditioned model") {
@@ -181,18 +199,7 @@ TEST_CASE("square-root filter stays correct on an ill-conditioned measurement wh
   // Cross-check (Python's exact rational arithmetic, fractions.Fraction, on the same inputs, one
   // update): P(0,0) = 0.6250000006984919, P(2,2) = 0.4999999990686774, x(2) = 0.37500000069849193.
   const double delta = std::ldexp(1.0, -27);
-  StateSpaceModel model;
-  model.state_names = {"a", "b", "c"};
-  model.observation_names = {"y1", "y2"};
-  model.A = Eigen::MatrixXd::Identity(3, 3);
-  model.B = Eigen::MatrixXd::Zero(3, 0);
-  model.C.resize(2, 3);
-  model.C << 1, 1, 1, 1, 1, 1 + delta;
-  model.Q = std::ldexp(1.0, -20) * Eigen::MatrixXd::Identity(3, 3);
-  model.R = delta * delta * Eigen::MatrixXd::Identity(2, 2);
-  model.initial_mean = Eigen::VectorXd::Zero(3);
-  model.initial_covariance = Eigen::MatrixXd::Identity(3, 3);
-  validate_model(model, "test");
+  const StateSpaceModel model = ill_conditioned_model(delta);
   const Transition transition = model_transition(model);
 
   // Three rows of exactly representable measurements.
@@ -224,9 +231,9 @@ TEST_CASE("square-root filter stays correct on an ill-conditioned measurement wh
       CHECK(static_cast<double>(P(2, 2)) == doctest::Approx(0.4999999990686774).epsilon(1e-15));
       CHECK(static_cast<double>(x(2, 0)) == doctest::Approx(0.37500000069849193).epsilon(1e-15));
     }
-    // A backward-stable array algorithm errs by about epsilon times the condition of the pre-array,
-    // here about 1/δ = 1.3e8: 2.2e-16 / δ = 3e-8 (measured: up to 5e-9).
-    const double tolerance = std::numeric_limits<double>::epsilon() / delta;
+    // A backward-stable array algorithm errs by a small multiple of epsilon times the condition of the
+    // pre-array, here about 1/δ = 1.3e8: 4 * 2.2e-16 / δ = 1.2e-7 (measured: up to 5e-9).
+    const double tolerance = 4.0 * std::numeric_limits<double>::epsilon() / delta;
     for (int i = 0; i < 3; ++i) {
       INFO("row " << t << ", state " << i << ": square-root " << root.mean()(i) << ", quad "
                   << static_cast<double>(x(i, 0)));
@@ -239,6 +246,39 @@ TEST_CASE("square-root filter stays correct on an ill-conditioned measurement wh
     const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eigen(root.covariance(), Eigen::EigenvaluesOnly);
     CHECK(eigen.eigenvalues().minCoeff() >= -1e-15);
   }
+}
+
+TEST_CASE("where the plain form silently loses accuracy the square-root form stays correct") {
+  // The same model with δ = 2^-25: δ² = 2^-50 is only 2 units in the last place of 3, so the plain
+  // update still factors S and returns ok, and the Joseph form keeps P positive semidefinite, but S's
+  // determinant (8δ² exactly) carries no correct digit and the updated P is off by about 2%. No
+  // status can reveal it; only the square-root form avoids it. Reference: quad_update (113 bits).
+  const double delta = std::ldexp(1.0, -25);
+  const StateSpaceModel model = ill_conditioned_model(delta);
+  const double y[2] = {1.0, 1.0 + delta / 2.0};
+  KalmanFilter plain(model);
+  SquareRootKalmanFilter root(model);
+  InnovationRecord record = make_innovation_record(2);
+  REQUIRE(plain.update(y, record) == StepStatus::ok);
+  REQUIRE(root.update(y, record) == StepStatus::ok);
+  QuadMatrix x(3, 1), P(3, 3), H(2, 3);
+  for (int i = 0; i < 3; ++i) P(i, i) = 1;
+  for (int i = 0; i < 3; ++i) H(0, i) = H(1, i) = 1;
+  H(1, 2) = Quad(1) + Quad(delta);
+  const Quad quad_y[2] = {Quad(y[0]), Quad(y[1])};
+  quad_update(x, P, H, Quad(delta) * Quad(delta), quad_y);
+  double plain_error = 0.0, root_error = 0.0;
+  for (int i = 0; i < 3; ++i)
+    for (int j = 0; j < 3; ++j) {
+      plain_error = std::max(plain_error, std::abs(plain.covariance()(i, j) - static_cast<double>(P(i, j))));
+      root_error = std::max(root_error, std::abs(root.covariance()(i, j) - static_cast<double>(P(i, j))));
+    }
+  MESSAGE("largest covariance error against the 113-bit reference: plain " << plain_error << ", square-root "
+                                                                           << root_error);
+  // Bounds: the plain error is far above rounding (measured 0.0094); the square-root error within the
+  // backward-stability bound of the test above, 4 eps / δ = 3e-8 (measured 4e-9).
+  CHECK(plain_error > 1e-3);
+  CHECK(root_error <= 4.0 * std::numeric_limits<double>::epsilon() / delta);
 }
 
 TEST_CASE("square-root filter reports a singular innovation covariance and keeps the state") {
