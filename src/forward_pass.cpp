@@ -114,7 +114,32 @@ StepStatus ForwardPass::update(const double* values, std::size_t line) {
   const double* used = values;
   row_rejections_ = 0;
   if (gate_) {
-    gate_->screen(values, mean(), covariance(), decision_);
+    int observed = 0;
+    for (std::size_t c = 0; c < m; ++c) observed += !std::isnan(values[c]);
+    if (observed > 0 && fully_rejected_rows_ >= kReacquireAfterRows) {
+      // Re-acquisition (docs/algorithms.md): the filter has lost the signal. Like a tracker that
+      // re-initializes a lost track, it keeps its mean, takes on the model's initial uncertainty again
+      // (P + P0) and lets this row in ungated.
+      const Eigen::MatrixXd widened = covariance() + model_.initial_covariance;
+      const Eigen::VectorXd current = mean();
+      if (root_)
+        root_->set_state(current, widened);
+      else
+        plain_.set_state(current, widened);
+      decision_.kept.assign(values, values + m);
+      decision_.innovation.setConstant(static_cast<Eigen::Index>(m),
+                                       std::numeric_limits<double>::quiet_NaN());
+      decision_.innovation_sd.setConstant(static_cast<Eigen::Index>(m),
+                                          std::numeric_limits<double>::quiet_NaN());
+      decision_.rejected.assign(m, 0);
+      decision_.rejected_count = 0;
+      fully_rejected_rows_ = 0;
+      if (rejections_.reacquired++ == 0) rejections_.first_reacquired_line = line;
+    } else {
+      gate_->screen(values, mean(), covariance(), decision_);
+      if (observed > 0)
+        fully_rejected_rows_ = decision_.rejected_count == observed ? fully_rejected_rows_ + 1 : 0;
+    }
     used = decision_.kept.data();
     row_rejections_ = static_cast<std::size_t>(decision_.rejected_count);
   }

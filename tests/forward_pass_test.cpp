@@ -218,3 +218,37 @@ TEST_CASE("the forward pass reports stuck runs with their lines") {
   CHECK(runs[0].first_line == 42);
   CHECK(runs[0].last_line == 66);
 }
+
+TEST_CASE("after ten fully rejected rows the gate lets the next row in, so the filter finds a jump") {
+  // A level that jumps by 50 measurement standard deviations at row 100 (a refilled tank, a moved
+  // sensor). The gate rejects the new values, the filter coasts on its prediction, and without the
+  // re-acquisition rule it would stay lost until its variance grew to the size of the jump. Rows 100 to
+  // 109 are rejected; at row 110 (line 112) the filter takes on its initial uncertainty again
+  // (P + P0, P0 = 100 here) and the row without the gate, which brings it to the new level at once.
+  StateSpaceModel model;
+  model.state_names = {"level"};
+  model.observation_names = {"y"};
+  model.A = Eigen::MatrixXd::Identity(1, 1);
+  model.B = Eigen::MatrixXd::Zero(1, 0);
+  model.C = Eigen::MatrixXd::Identity(1, 1);
+  model.Q = Eigen::MatrixXd::Constant(1, 1, 0.01);
+  model.R = Eigen::MatrixXd::Constant(1, 1, 1.0);
+  model.initial_mean = Eigen::VectorXd::Zero(1);
+  model.initial_covariance = Eigen::MatrixXd::Constant(1, 1, 100.0);
+  const Transition transition = model_transition(model);
+  ForwardPassOptions options;
+  options.reject_probability = 0.999;
+  ForwardPass pass(model, options);
+  testing::TestRandom random{31};
+  for (int t = 0; t < 200; ++t) {
+    if (t > 0) pass.predict(transition, nullptr);
+    const double y = (t >= 100 ? 50.0 : 0.0) + random.normal() * 0.5;  // well inside the gate before the jump
+    REQUIRE(pass.update(&y, static_cast<std::size_t>(t + 2)) == StepStatus::ok);
+    if (t >= 100 && t < 110) CHECK(pass.rejected()[0] == 1);
+    if (t == 110) CHECK(pass.rejected()[0] == 0);
+  }
+  CHECK(pass.rejections().reacquired == 1);
+  CHECK(pass.rejections().first_reacquired_line == 112);
+  CHECK(pass.rejections().count == 10);
+  CHECK(std::abs(pass.mean()(0) - 50.0) < 1.0);
+}

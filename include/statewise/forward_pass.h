@@ -61,12 +61,23 @@ struct RejectedValue {
 /// Most rejected values a pass lists one by one (the rest are counted).
 inline constexpr std::size_t kRejectionsListed = 20;
 
+/// Rows in a row on which the gate rejected every observed value, after which the filter re-acquires
+/// the signal: it adds the model's initial covariance to its covariance and takes the next row with
+/// data without the gate. A filter that has lost the signal (after a jump in the data, or after
+/// following a stuck sensor) predicts so far off that every value fails the gate and nothing would
+/// bring it back; at P = 0.999 ten such rows in a row do not happen by chance.
+inline constexpr std::size_t kReacquireAfterRows = 10;
+
 /// The values the gate rejected.
 struct RejectionLog {
   std::size_t count = 0;                 ///< all rejected values
   std::vector<std::size_t> per_channel;  ///< rejected values per channel
   std::size_t row_count = 0;             ///< rows with at least one rejected value
   std::vector<RejectedValue> first;      ///< the first kRejectionsListed, in order
+  /// Re-acquisitions: rows taken without the gate, with the covariance widened by the initial
+  /// covariance, after kReacquireAfterRows rows in a row with every value rejected.
+  std::size_t reacquired = 0;
+  std::size_t first_reacquired_line = 0;  ///< input line of the first such row (0 = none)
 };
 
 /// True when a covariance has clearly lost positive semidefiniteness: a negative or non-finite
@@ -87,7 +98,9 @@ class ForwardPass {
   void predict(const Transition& transition, const double* previous_inputs);
 
   /// Screens (stuck detection, gate) and updates with one row of m values (NaN = missing) read from
-  /// input line `line`, then adds the row to the statistics. With Numerics::plain, a failed update or
+  /// input line `line`, then adds the row to the statistics. After kReacquireAfterRows rows in a row
+  /// with every value rejected, the covariance is widened by the initial covariance and the next row
+  /// with data is taken without the gate. With Numerics::plain, a failed update or
   /// a covariance that lost definiteness makes the pass switch to the square-root form from the
   /// row's prediction and redo the row; only when that fails too is the status returned. On a non-ok
   /// status the row is not added to the statistics.
@@ -147,6 +160,7 @@ class ForwardPass {
   Eigen::MatrixXd saved_covariance_, definiteness_workspace_;
   std::size_t rows_ = 0;
   std::size_t row_rejections_ = 0;
+  std::size_t fully_rejected_rows_ = 0;  // consecutive rows with every observed value rejected
   std::size_t line_ = 0;
 };
 
