@@ -106,7 +106,7 @@ TEST_CASE("spikes are rejected with a high hit rate and few false alarms at P = 
   // a uniform in [5, 15] is about 99%. Measured: 0.995 (1623 of 1631). Bound 0.98.
   CHECK(hit_rate >= 0.98);
   // False alarms. Under the model a good value passes with probability P, so 1 - P = 0.1% of clean
-  // values are rejected: about 78 of 78 000 (binomial sd 9). A filter pulled off course by spikes it
+  // values are rejected: about 78 of 78 000 (binomial sd 9). A filter dragged away by spikes it
   // let through would raise more. Measured: 0.00100 (78 of 78 369). Bound: 0.1% plus 4 binomial sd.
   CHECK(false_alarm_rate <= 0.001 + 4.0 * std::sqrt(0.001 * 0.999 / gated.clean));
 

@@ -4,6 +4,7 @@
 
 #include <doctest/doctest.h>
 #include <sys/wait.h>
+#include <unistd.h>
 
 #include <cmath>
 #include <cstdlib>
@@ -17,7 +18,9 @@
 
 namespace {
 
-const std::string kDirectory = std::string(STATEWISE_TEST_OUTPUT_DIR) + "/trust_commands";
+// One folder per process: ctest runs the test cases in parallel, each in its own process.
+const std::string kDirectory =
+    std::string(STATEWISE_TEST_OUTPUT_DIR) + "/trust_commands/" + std::to_string(getpid());
 const std::string kExample = std::string(STATEWISE_SOURCE_DIR) + "/examples/cold-room";
 
 std::string read_file(const std::string& path) {
