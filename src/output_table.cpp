@@ -62,7 +62,8 @@ void EstimateTableWriter::append_header(std::string& out) const {
     column(c + "_sd");
     column(c + "_filled");
     column(c + "_imputed");
-    if (kind_ == EstimateKind::filtered) {
+    if (format_.rejected_column) column(c + "_rejected");
+    if (kind_ == EstimateKind::filtered || format_.innovations) {
       column(c + "_innov");
       column(c + "_z");
     }
@@ -77,7 +78,7 @@ void EstimateTableWriter::append_header(std::string& out) const {
 void EstimateTableWriter::append_row(std::string& out, std::string_view time_text, const double* values,
                                      const Eigen::Ref<const Eigen::VectorXd>& mean,
                                      const Eigen::Ref<const Eigen::MatrixXd>& covariance,
-                                     const InnovationRecord* innovations,
+                                     const InnovationRecord* innovations, const unsigned char* rejected,
                                      const Eigen::MatrixXd* diffuse_covariance) const {
   constexpr double kInfinity = std::numeric_limits<double>::infinity();
 
@@ -118,7 +119,11 @@ void EstimateTableWriter::append_row(std::string& out, std::string_view time_tex
     append_number(out, missing ? estimate : values[c], digits);
     out += d;
     out += missing ? '1' : '0';
-    if (kind_ == EstimateKind::filtered) {
+    if (format_.rejected_column) {
+      out += d;
+      out += rejected != nullptr && rejected[c] != 0 ? '1' : '0';
+    }
+    if (kind_ == EstimateKind::filtered || format_.innovations) {
       const double innovation = innovations != nullptr ? innovations->innovation(c) : std::nan("");
       const double sd = innovations != nullptr ? innovations->innovation_sd(c) : std::nan("");
       out += d;

@@ -1,5 +1,6 @@
 #include "statewise/report.h"
 
+#include "detail/diagnostics_json.h"
 #include "detail/json_util.h"
 #include "statewise/version.h"
 
@@ -31,6 +32,7 @@ std::string write_report_json(const RunReport& report) {
                             {"expected", report.nis.expected},
                             {"lower_95", report.nis.lower_95},
                             {"upper_95", report.nis.upper_95}};
+  if (report.diagnostics) detail::add_diagnostics_json(root, *report.diagnostics);
   root["warnings"] = report.warnings;
   return detail::dump_json_pretty(root);
 }

@@ -206,11 +206,11 @@ TEST_CASE("filter output: a state still undetermined has standard deviation inf,
   const double first = 3.0, second = 4.0;
   REQUIRE(filter.update(&first, record) == StepStatus::ok);
   REQUIRE(filter.diffuse_covariance() != nullptr);
-  writer.append_row(rows, "", &first, filter.mean(), filter.covariance(), &record, filter.diffuse_covariance());
+  writer.append_row(rows, "", &first, filter.mean(), filter.covariance(), &record, nullptr, filter.diffuse_covariance());
   filter.predict(model_transition(model), nullptr);
   REQUIRE(filter.update(&second, record) == StepStatus::ok);
   CHECK(filter.diffuse_covariance() == nullptr);
-  writer.append_row(rows, "", &second, filter.mean(), filter.covariance(), &record, filter.diffuse_covariance());
+  writer.append_row(rows, "", &second, filter.mean(), filter.covariance(), &record, nullptr, filter.diffuse_covariance());
   // Columns: level, level_sd, slope, slope_sd, a_est, a_sd, a_filled, a_imputed, a_innov, a_z.
   const std::string row0 = rows.substr(0, rows.find('\n'));
   CHECK(row0.rfind("3,1,0,inf,3,1,3,0,,") == 0);

@@ -2,8 +2,9 @@
 /// \file output_table.h
 /// Formats estimates as rows of delimited text, the columns documented in docs/outputs.md:
 /// the time column if declared; per state s: `s`, `s_sd`; per channel c: `c_est`, `c_sd`,
-/// `c_filled`, `c_imputed`; for the filter also `c_innov` and `c_z`; for a forecast also `c_lo` and
-/// `c_hi`, a prediction interval for a new measurement. Missing numbers are empty cells;
+/// `c_filled`, `c_imputed`, with an outlier gate `c_rejected`; for the filter (or on request) also
+/// `c_innov` and `c_z`; for a forecast also `c_lo` and `c_hi`, a prediction interval for a new
+/// measurement. Missing numbers are empty cells;
 /// numbers are written in shortest round-trip form (std::to_chars) or with a chosen number of
 /// significant digits.
 
@@ -24,10 +25,12 @@ enum class EstimateKind {
   forecast,  ///< forecast: adds c_lo and c_hi, the interval C x ∓ z sqrt(C P C' + R)_cc for a new measurement
 };
 
-/// How numbers and fields are written.
+/// How numbers and fields are written, and which optional columns there are.
 struct TableFormat {
   char delimiter = ',';  ///< field separator
   int digits = 0;        ///< significant digits; 0 = shortest text that reads back to the same double
+  bool rejected_column = false;  ///< write `c_rejected` (1 where the gate rejected the value, else 0)
+  bool innovations = false;      ///< write `c_innov` and `c_z` for EstimateKind::smoothed too
 };
 
 /// Appends `value` to `out`: empty for NaN, otherwise shortest round-trip or `digits` significant digits.
@@ -45,13 +48,15 @@ class EstimateTableWriter {
                       double interval_level = 0.95);
   /// Appends the header line.
   void append_header(std::string& out) const;
-  /// Appends one row. `values` are the row's m measured values (NaN = missing); `innovations` is
-  /// required for EstimateKind::filtered and ignored otherwise. `diffuse_covariance` (may be null) is
-  /// the diffuse part P_inf of the covariance during the exact diffuse phase: the standard deviation
-  /// of a state or channel it reaches is unbounded and written as `inf`.
+  /// Appends one row. `values` are the row's m values as the filter used them (NaN = missing or
+  /// rejected); `innovations` is required when the table has innovation columns and ignored
+  /// otherwise; `rejected` (m flags, 1 = rejected; null = none) fills `c_rejected`.
+  /// `diffuse_covariance` (may be null) is the diffuse part P_inf of the covariance during the exact
+  /// diffuse phase: the standard deviation of a state or channel it reaches is unbounded, written `inf`.
   void append_row(std::string& out, std::string_view time_text, const double* values,
                   const Eigen::Ref<const Eigen::VectorXd>& mean, const Eigen::Ref<const Eigen::MatrixXd>& covariance,
-                  const InnovationRecord* innovations, const Eigen::MatrixXd* diffuse_covariance = nullptr) const;
+                  const InnovationRecord* innovations, const unsigned char* rejected = nullptr,
+                  const Eigen::MatrixXd* diffuse_covariance = nullptr) const;
 
  private:
   const StateSpaceModel& model_;

@@ -3,10 +3,12 @@
 /// The JSON report of a filter or smooth run (keys documented in docs/outputs.md).
 
 #include <cstddef>
+#include <optional>
 #include <string>
 #include <vector>
 
 #include "statewise/diagnostics.h"
+#include "statewise/diagnostics_report.h"
 
 namespace statewise {
 
@@ -21,6 +23,9 @@ struct RunReport {
   std::vector<ChannelInnovationSummary> channels;  ///< one per measured channel
   NisSummary nis;                                  ///< time-averaged normalized innovation squared
   std::vector<std::string> warnings;               ///< plain sentences
+  /// Consistency tests, verdicts, numerics, rejected values and stuck sensors (diagnostics_report.h);
+  /// written as the keys `numerics`, `diagnostics`, `verdicts`, `rejected` and `stuck` when set.
+  std::optional<DiagnosticsReport> diagnostics;
 };
 
 /// The report as pretty JSON text (NaN becomes null), ending with a newline.

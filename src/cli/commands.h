@@ -4,14 +4,32 @@
 // numerical trouble as NumericalFailure, all mapped to exit codes in main.cpp.
 
 #include <cstdint>
+#include <cstddef>
 #include <string>
 #include <vector>
+
+#include "statewise/forward_pass.h"
+#include "statewise/report.h"
+
+namespace CLI {
+class App;
+}
 
 namespace statewise::cli {
 
 /// A numerical breakdown the command cannot get past; the message names the row's file and line.
 struct NumericalFailure {
   std::string message;
+};
+
+/// Options about trusting the output, shared by filter, smooth and diagnose (cli/trust_options.cpp).
+struct TrustOptions {
+  std::string reject;              // --reject P; empty = no gate
+  std::string numerics = "plain";  // --numerics plain|square-root
+  int stuck_run = 20;              // --stuck N; 0 = off
+  int lags = 0;                    // --lags H; 0 = automatic
+  std::string plot_path;           // --plot FILE (filter, smooth); empty = none
+  bool innovations = false;        // --innovations (smooth)
 };
 
 /// Options shared by the commands that read a log and write estimates.
@@ -26,6 +44,7 @@ struct EstimateOptions {
   bool sort = false;                       // --sort: sort rows by time first
   std::string duplicates = "error";        // --duplicates error|first|last|mean
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
+  TrustOptions trust;                      // --reject, --numerics, --stuck, --lags, --plot, --innovations
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.
@@ -53,6 +72,13 @@ struct DiscretizeOptions {
   std::string model_path;         // -m/--model
   double dt = 0.0;                // --dt, seconds
   std::string output_path = "-";  // -o/--output
+};
+
+/// Options of `statewise plot`.
+struct PlotCommandOptions {
+  std::string input_path = "-";   // positional: an estimates table; "-" = standard input
+  std::string output_path = "-";  // -o/--output: the HTML page
+  std::string title;              // --title; empty = from the input's name
 };
 
 /// `statewise filter`: streams rows through the Kalman filter.
@@ -90,8 +116,24 @@ struct ExpandCommandOptions {
 int run_fit(const FitCommandOptions& options);
 /// `statewise expand`: prints a model file with its components written out as plain matrices.
 int run_expand(const ExpandCommandOptions& options);
+/// `statewise diagnose`: runs the filter and prints the consistency tests and verdicts as text.
+int run_diagnose(const EstimateOptions& options);
+/// `statewise plot`: draws an estimates table as a self-contained HTML page.
+int run_plot(const PlotCommandOptions& options);
 
 /// The delimiter option as one character: "," ";" "|" "\t" or "tab".
 char parse_delimiter(const std::string& text);
+
+/// The options of `diagnose`: those of filter that make sense without an estimates table.
+void add_diagnose_options(CLI::App& command, EstimateOptions& options);
+/// Adds --reject, --numerics, --stuck and --lags to a command, and --plot and --innovations when asked.
+void add_trust_options(CLI::App& command, TrustOptions& options, bool plot, bool innovations);
+/// The forward pass's options from the flags; raises InputError naming the flag for a bad value.
+ForwardPassOptions forward_pass_options(const TrustOptions& options);
+/// Puts the pass's diagnostics into the report and appends their warnings (stuck sensors, numerics).
+void attach_diagnostics(RunReport& report, const ForwardPass& pass, const std::string& input_name);
+/// Draws `table_text` (an estimates table) as HTML into options.trust.plot_path, with the report's
+/// verdicts and warnings on the page.
+void write_plot_file(const std::string& table_text, const EstimateOptions& options, const RunReport& report);
 
 }  // namespace statewise::cli

@@ -12,6 +12,7 @@
 #include "statewise/diffuse.h"
 #include "statewise/error.h"
 #include "statewise/filter.h"
+#include "statewise/forward_pass.h"
 #include "statewise/output_table.h"
 #include "statewise/report.h"
 #include "statewise/series.h"
@@ -73,6 +74,11 @@ void add_channel_warnings(RunReport& report) {
                                 "\" has no observed values; its estimates come from the model alone");
 }
 
+// The estimates table's format: the optional columns follow --reject and --innovations.
+TableFormat table_format(const EstimateOptions& options, bool innovations) {
+  return TableFormat{',', options.digits, !options.trust.reject.empty(), innovations};
+}
+
 RunReport start_report(const char* command, const EstimateOptions& options, const StateSpaceModel& model) {
   RunReport report;
   report.command = command;
@@ -82,13 +88,16 @@ RunReport start_report(const char* command, const EstimateOptions& options, cons
   return report;
 }
 
-void finish_report(RunReport& report, const InnovationAccumulator& accumulator, const EstimateOptions& options) {
+void finish_report(RunReport& report, const ForwardPass& pass, const EstimateOptions& options,
+                   const CsvReader& reader) {
+  const InnovationAccumulator& accumulator = pass.accumulator();
   report.rows = accumulator.rows();
   report.log_likelihood = accumulator.log_likelihood();
   report.channels = accumulator.channels();
   report.nis = accumulator.nis();
   add_channel_warnings(report);
   if (report.rows == 0) report.warnings.push_back("the log has no data rows");
+  attach_diagnostics(report, pass, reader.display_name());
   if (!options.report_path.empty()) write_whole_file(options.report_path, write_report_json(report), options.input_path);
 }
 
@@ -99,17 +108,20 @@ int run_filter(const EstimateOptions& options) {
   check_sort_flag(model, options.sort);
   Timeline timeline(model, timeline_options(options),
                     options.input_path == "-" ? "<stdin>" : options.input_path);
+  const ForwardPassOptions pass_options = forward_pass_options(options.trust);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
 
-  const EstimateTableWriter writer(model, EstimateKind::filtered, TableFormat{',', options.digits});
+  const EstimateTableWriter writer(model, EstimateKind::filtered, table_format(options, true));
   TransitionCache transitions(model, kStreamingCacheCapacity);
   SpacingWatch spacing(model, options.regular_step);
-  KalmanFilter filter(model);
-  InnovationAccumulator accumulator(model.observation_names);
-  InnovationRecord record = make_innovation_record(model.channel_count());
-  std::string buffer;
+  ForwardPass filter(model, pass_options);
+  std::string buffer, plot_table;  // with --plot, the table is kept for the plot
+  auto write_out = [&]() {
+    if (!options.trust.plot_path.empty()) plot_table += buffer;
+    output.write_buffer(buffer);
+  };
   writer.append_header(buffer);
   std::vector<double> previous_inputs;
   bool first = true;
@@ -117,26 +129,26 @@ int run_filter(const EstimateOptions& options) {
     if (!first)
       filter.predict(transitions.transition(row.gap),
                      previous_inputs.empty() ? nullptr : previous_inputs.data());
-    const StepStatus status = filter.update(row.row.values.data(), record);
+    const StepStatus status = filter.update(row.row.values.data(), row.row.line);
     if (status != StepStatus::ok) fail_step(status, row_place(reader.display_name(), row));
-    accumulator.add(record);
     spacing.add(row);
-    writer.append_row(buffer, row.row.time_text, row.row.values.data(), filter.mean(), filter.covariance(),
-                      &record, filter.diffuse_covariance());
+    writer.append_row(buffer, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
+                      &filter.record(), filter.rejected(), filter.diffuse_covariance());
     if (output.interactive()) {
-      output.write_buffer(buffer);
+      write_out();
       output.flush();
     } else if (buffer.size() >= (1u << 16)) {
-      output.write_buffer(buffer);
+      write_out();
     }
     previous_inputs = row.row.inputs;
     first = false;
   });
-  output.write_buffer(buffer);
+  write_out();
   output.commit();
   RunReport report = start_report("filter", options, model);
   add_timeline_warnings(report, timeline, spacing, options);
-  finish_report(report, accumulator, options);
+  finish_report(report, filter, options, reader);
+  if (!options.trust.plot_path.empty()) write_plot_file(plot_table, options, report);
   return kExitSuccess;
 }
 
@@ -145,6 +157,7 @@ int run_smooth(const EstimateOptions& options) {
   check_sort_flag(model, options.sort);
   Timeline timeline(model, timeline_options(options),
                     options.input_path == "-" ? "<stdin>" : options.input_path);
+  const ForwardPassOptions pass_options = forward_pass_options(options.trust);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
@@ -169,17 +182,30 @@ int run_smooth(const EstimateOptions& options) {
   const std::string& file = reader.display_name();
 
   // Forward pass: filter every row, keeping the filtered moments for the backward pass.
-  KalmanFilter filter(model);
-  InnovationAccumulator accumulator(model.observation_names);
-  InnovationRecord record = make_innovation_record(model.channel_count());
+  ForwardPass filter(model, pass_options);
   StateTrack track(model.state_count());
   track.reserve(rows);
+  // With a gate, the values the filter used and the rejection flags; with innovation columns (or a
+  // plot), each row's innovations and their standard deviations.
+  const auto m = static_cast<std::size_t>(model.channel_count());
+  const bool gated = !options.trust.reject.empty();
+  const bool keep_innovations = options.trust.innovations || !options.trust.plot_path.empty();
+  std::vector<double> used_values, innovations;
+  std::vector<unsigned char> rejected;
   for (std::size_t t = 0; t < rows; ++t) {
     if (t > 0) filter.predict(schedule.step(t - 1), series.row_inputs(t - 1));
-    const StepStatus status = filter.update(series.row_values(t), record);
+    const StepStatus status = filter.update(series.row_values(t), series.lines[t]);
     if (status != StepStatus::ok) fail_step(status, row_place(file, series.lines[t], series.time_text(t)));
-    accumulator.add(record);
     track.push_back(filter.mean(), filter.covariance());
+    if (gated) {
+      used_values.insert(used_values.end(), filter.used_values(), filter.used_values() + m);
+      rejected.insert(rejected.end(), filter.rejected(), filter.rejected() + m);
+    }
+    if (keep_innovations)
+      for (std::size_t c = 0; c < m; ++c) {
+        innovations.push_back(filter.record().innovation(static_cast<Eigen::Index>(c)));
+        innovations.push_back(filter.record().innovation_sd(static_cast<Eigen::Index>(c)));
+      }
   }
 
   // Backward pass, in place; the exact diffuse smoother when some states start with no prior.
@@ -204,11 +230,25 @@ int run_smooth(const EstimateOptions& options) {
     throw NumericalFailure{row_place(file, series.lines[smoothed.row], series.time_text(smoothed.row)) +
                            ": " + smoothed.message};
 
-  const EstimateTableWriter writer(model, EstimateKind::smoothed, TableFormat{',', options.digits});
-  std::string buffer;
+  const EstimateTableWriter writer(model, EstimateKind::smoothed, table_format(options, options.trust.innovations));
+  const EstimateTableWriter plot_writer(model, EstimateKind::smoothed, table_format(options, true));
+  const bool plot = !options.trust.plot_path.empty();
+  std::string buffer, plot_table;
   writer.append_header(buffer);
+  if (plot) plot_writer.append_header(plot_table);
+  InnovationRecord record = make_innovation_record(model.channel_count());
   for (std::size_t t = 0; t < rows; ++t) {
-    writer.append_row(buffer, series.time_text(t), series.row_values(t), track.mean(t), track.covariance(t), nullptr);
+    const double* values = gated ? &used_values[t * m] : series.row_values(t);
+    const unsigned char* row_rejected = gated ? &rejected[t * m] : nullptr;
+    if (keep_innovations)
+      for (std::size_t c = 0; c < m; ++c) {
+        record.innovation(static_cast<Eigen::Index>(c)) = innovations[2 * (t * m + c)];
+        record.innovation_sd(static_cast<Eigen::Index>(c)) = innovations[2 * (t * m + c) + 1];
+      }
+    writer.append_row(buffer, series.time_text(t), values, track.mean(t), track.covariance(t), &record, row_rejected);
+    if (plot)
+      plot_writer.append_row(plot_table, series.time_text(t), values, track.mean(t), track.covariance(t), &record,
+                             row_rejected);
     if (buffer.size() >= (1u << 16)) output.write_buffer(buffer);
   }
   output.write_buffer(buffer);
@@ -222,7 +262,8 @@ int run_smooth(const EstimateOptions& options) {
   if (diffuse_unresolved)
     report.warnings.push_back("the data do not determine every diffuse initial state (no channel sees it); "
                               "their estimates are not meaningful");
-  finish_report(report, accumulator, options);
+  finish_report(report, filter, options, reader);
+  if (plot) write_plot_file(plot_table, options, report);
   return kExitSuccess;
 }
 

@@ -91,9 +91,11 @@ int main(int argc, char** argv) {
   CLI::App* filter = app.add_subcommand("filter", "Run the Kalman filter over a log, row by row");
   add_estimate_options(*filter, filter_options);
   add_regular_option(*filter, filter_options);
+  add_trust_options(*filter, filter_options.trust, true, false);
   CLI::App* smooth = app.add_subcommand("smooth", "Estimate every row from the whole log (RTS smoother)");
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
+  add_trust_options(*smooth, smooth_options.trust, true, true);
 
   ForecastOptions forecast_options;
   CLI::App* forecast = app.add_subcommand(
@@ -158,6 +160,18 @@ int main(int argc, char** argv) {
   expand->add_option("-o,--output", expand_options.output_path, "Where to write it; - for standard output")
       ->capture_default_str();
 
+  EstimateOptions diagnose_options;
+  CLI::App* diagnose =
+      app.add_subcommand("diagnose", "Check the model on a log: innovation tests and verdicts in plain words");
+  add_diagnose_options(*diagnose, diagnose_options);
+  PlotCommandOptions plot_options;
+  CLI::App* plot = app.add_subcommand("plot", "Draw an estimates table as a self-contained HTML page");
+  plot->add_option("input", plot_options.input_path, "Estimates table (CSV of filter or smooth); - for standard input")
+      ->capture_default_str();
+  plot->add_option("-o,--output", plot_options.output_path, "Where to write the HTML page; - for standard output")
+      ->capture_default_str();
+  plot->add_option("--title", plot_options.title, "Title of the page");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -178,6 +192,8 @@ int main(int argc, char** argv) {
     if (discretize->parsed()) return run_discretize(discretize_options);
     if (fit->parsed()) return run_fit(fit_options);
     if (expand->parsed()) return run_expand(expand_options);
+    if (diagnose->parsed()) return run_diagnose(diagnose_options);
+    if (plot->parsed()) return run_plot(plot_options);
   } catch (const statewise::InputError& e) {
     return report_error(e.what(), kExitBadInput);
   } catch (const NumericalFailure& e) {
