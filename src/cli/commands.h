@@ -22,6 +22,7 @@ struct EstimateOptions {
   std::string delimiter = ",";             // --delimiter (input)
   std::vector<std::string> missing_tokens;  // --missing, repeatable
   int digits = 0;                          // --digits; 0 = shortest round trip
+  std::string format = "csv";              // --format: csv, tsv or jsonl
 };
 
 /// `statewise filter`: streams rows through the Kalman filter.

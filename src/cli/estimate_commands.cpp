@@ -26,6 +26,10 @@ char parse_delimiter(const std::string& text) {
 
 namespace {
 
+TableFormat table_format(const EstimateOptions& options) {
+  return TableFormat{',', options.digits, parse_table_syntax(options.format, {"--format", 0, 0, ""})};
+}
+
 CsvOptions csv_options(const EstimateOptions& options) {
   CsvOptions csv;
   csv.delimiter = parse_delimiter(options.delimiter);
@@ -76,7 +80,7 @@ int run_filter(const EstimateOptions& options) {
   ObservationStream stream(reader, model);
   OutputFile output(options.output_path, options.input_path);
 
-  const EstimateTableWriter writer(model, EstimateKind::filtered, TableFormat{',', options.digits});
+  const EstimateTableWriter writer(model, EstimateKind::filtered, table_format(options));
   const Transition transition = model_transition(model);
   KalmanFilter filter(model);
   InnovationAccumulator accumulator(model.observation_names);
@@ -135,7 +139,7 @@ int run_smooth(const EstimateOptions& options) {
   const SmoothStatus smoothed = rts_smooth(track, schedule, series.inputs.data(), series.input_count);
   if (!smoothed.ok) throw NumericalFailure{row_place(reader, series.lines[smoothed.row]) + ": " + smoothed.message};
 
-  const EstimateTableWriter writer(model, EstimateKind::smoothed, TableFormat{',', options.digits});
+  const EstimateTableWriter writer(model, EstimateKind::smoothed, table_format(options));
   std::string buffer;
   writer.append_header(buffer);
   for (std::size_t t = 0; t < rows; ++t) {

@@ -7,6 +7,7 @@
 
 #include <CLI/CLI.hpp>
 
+#include "cli/cli_definition.h"
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
 #include "cli/output_file.h"
@@ -33,6 +34,7 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
   command.add_option("--digits", options.digits, "Significant digits of output numbers; 0 = shortest exact")
       ->capture_default_str()
       ->check(CLI::Range(0, 17));
+  statewise::cli::add_format_option(command, options.format);
 }
 
 int report_error(const std::string& message, int code) {
