@@ -11,44 +11,11 @@
 
 #include <nlohmann/json.hpp>
 
-#include "run_command.h"
+#include "cli_listing.h"
 
 using namespace statewise::test;
 
 namespace {
-
-// The entries of one section ("Options:", "Positionals:", "Subcommands:") of a CLI11 help text:
-// each entry is its first line with its indented continuation lines appended.
-std::vector<std::string> help_entries(const std::string& help, const std::string& section) {
-  std::vector<std::string> entries;
-  std::istringstream lines(help);
-  std::string line;
-  bool inside = false;
-  while (std::getline(lines, line)) {
-    if (line == section) {
-      inside = true;
-    } else if (inside && line.empty()) {
-      if (!entries.empty()) break;
-    } else if (inside && line.rfind("    ", 0) == 0 && !entries.empty()) {
-      entries.back() += " " + line.substr(line.find_first_not_of(' '));
-    } else if (inside && line.rfind("  ", 0) == 0) {
-      entries.push_back(line.substr(2));
-    } else if (inside) {
-      break;
-    }
-  }
-  return entries;
-}
-
-std::string first_word(const std::string& text) { return text.substr(0, text.find(' ')); }
-
-// The commands `statewise --help` lists.
-std::vector<std::string> listed_commands() {
-  std::vector<std::string> commands;
-  for (const auto& entry : help_entries(run_command(statewise_command("--help")).output, "Subcommands:"))
-    commands.push_back(first_word(entry));
-  return commands;
-}
 
 // The option names in a help text's Options section, each as written there ("-m,--model").
 std::vector<std::string> listed_options(const std::string& help) {
