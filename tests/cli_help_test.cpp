@@ -136,3 +136,9 @@ TEST_CASE("cli: --print-cli-definition describes exactly the commands and option
 TEST_CASE("cli: --print-cli-definition is hidden from the help") {
   CHECK(run_command(statewise_command("--help")).output.find("print-cli-definition") == std::string::npos);
 }
+
+TEST_CASE("cli: debian/changelog's newest entry carries the version of project() in CMakeLists.txt") {
+  // The version is defined in CMakeLists.txt; the Debian changelog has to repeat it, so check it.
+  const std::string changelog = read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/debian/changelog");
+  CHECK(changelog.rfind("statewise (" + project_version() + ") ", 0) == 0);
+}
