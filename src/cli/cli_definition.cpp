@@ -13,8 +13,8 @@ namespace statewise::cli {
 
 namespace {
 
-constexpr std::size_t kHelpWidth = 80;         // the help text fits an 80-column terminal
-constexpr std::size_t kHelpNameColumn = 30;    // option names, then descriptions from this column
+constexpr std::size_t kHelpWidth = 80;       // the help text fits an 80-column terminal
+constexpr std::size_t kHelpNameColumn = 30;  // option names, then descriptions from this column
 
 std::string join(const std::vector<std::string>& names, const std::string& separator, const std::string& last) {
   std::string text;
@@ -116,6 +116,16 @@ class HelpFormatter : public CLI::Formatter {
       text += " ...";
     else if (option->get_expected_min() > 1)
       text += " x " + std::to_string(option->get_expected());
+    // As CLI11 shows them: an environment variable, and options needed or excluded.
+    if (!option->get_envname().empty()) text += " (Env:" + option->get_envname() + ")";
+    if (!option->get_needs().empty()) {
+      text += " Needs:";
+      for (const CLI::Option* other : option->get_needs()) text += " " + other->get_name();
+    }
+    if (!option->get_excludes().empty()) {
+      text += " Excludes:";
+      for (const CLI::Option* other : option->get_excludes()) text += " " + other->get_name();
+    }
     return text;
   }
 
@@ -136,11 +146,8 @@ void complete_command(CLI::App& command, const std::shared_ptr<HelpFormatter>& f
   for (CLI::App* sub : command.get_subcommands([](CLI::App*) { return true; })) complete_command(*sub, formatter);
 }
 
-std::vector<CLI::App*> visible_commands(const CLI::App& app) {
-  std::vector<CLI::App*> commands;
-  for (const CLI::App* sub : app.get_subcommands([](const CLI::App* s) { return is_visible(s); }))
-    commands.push_back(const_cast<CLI::App*>(sub));
-  return commands;
+std::vector<const CLI::App*> visible_commands(const CLI::App& app) {
+  return app.get_subcommands([](const CLI::App* command) { return is_visible(command); });
 }
 
 nlohmann::ordered_json option_json(const CLI::Option* option) {
