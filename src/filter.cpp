@@ -2,9 +2,12 @@
 
 #include <cmath>
 #include <numbers>
+#include <string>
 
 #include "detail/small_cholesky.h"
 #include "statewise/diffuse.h"
+#include "statewise/error.h"
+#include "statewise/filter_state.h"
 
 namespace statewise {
 
@@ -59,7 +62,7 @@ void predict_moments(const Transition& transition, const Eigen::VectorXd& mean, 
   symmetrize(predicted_covariance);
 }
 
-KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model) {
+KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model), transition_(model_transition(model)) {
   const Eigen::Index n = model.A.rows();
   const Eigen::Index m = model.C.rows();
   identity_minus_gain_.resize(n, n);
@@ -82,6 +85,8 @@ KalmanFilter::KalmanFilter(const StateSpaceModel& model) : model_(model) {
     w.factor.resize(k, k);
   }
   observed_index_.resize(static_cast<std::size_t>(m));
+  saved_mean_.resize(n);
+  saved_covariance_.resize(n, n);
   reset();
 }
 
@@ -90,6 +95,8 @@ void KalmanFilter::reset() {
   covariance_ = model_.initial_covariance;
   diffuse_phase_ = model_.has_diffuse_states();
   diffuse_ = initial_diffuse_covariance(model_);
+  rows_processed_ = 0;
+  last_inputs_ = Eigen::VectorXd::Zero(model_.input_count());
 }
 
 void KalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance) {
@@ -213,6 +220,79 @@ StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) 
   // log N(v; 0, S) = -(k log 2π + log det S + v' S^-1 v) / 2
   record.log_likelihood = -0.5 * (k * std::log(2.0 * std::numbers::pi) + log_determinant + nis);
   return StepStatus::ok;
+}
+
+namespace {
+
+std::string names_in_parentheses(const std::vector<std::string>& names) {
+  std::string text = "(";
+  for (std::size_t i = 0; i < names.size(); ++i) text += (i > 0 ? ", " : "") + names[i];
+  return text + ")";
+}
+
+std::string number_text(double value) {
+  if (std::isnan(value)) return "nan";
+  return value > 0 ? "inf" : "-inf";
+}
+
+}  // namespace
+
+StepStatus KalmanFilter::step(std::span<const double> values, std::span<const double> inputs,
+                              InnovationRecord& record) {
+  // Check every argument before anything changes, so that a bad row leaves the filter as it was.
+  const std::size_t m = model_.observation_names.size(), p = model_.input_names.size();
+  const std::string row = "row " + std::to_string(rows_processed_ + 1);
+  if (values.size() != m)
+    raise_input_error({row, 0, 0, "values"}, "expected " + std::to_string(m) + " channel values " +
+                                                 names_in_parentheses(model_.observation_names) + ", got " +
+                                                 std::to_string(values.size()));
+  if (inputs.size() != p)
+    raise_input_error({row, 0, 0, "inputs"}, "expected " + std::to_string(p) + " inputs" +
+                                                 (p > 0 ? " " + names_in_parentheses(model_.input_names) : "") +
+                                                 ", got " + std::to_string(inputs.size()));
+  for (std::size_t c = 0; c < m; ++c)
+    if (std::isinf(values[c]))
+      raise_input_error({row, 0, 0, "values[" + std::to_string(c) + "]"},
+                        "channel \"" + model_.observation_names[c] + "\": expected a finite number or NaN for a missing value, got " +
+                            number_text(values[c]));
+  for (std::size_t i = 0; i < p; ++i) {
+    const SourceLocation where{row, 0, 0, "inputs[" + std::to_string(i) + "]"};
+    if (std::isnan(inputs[i]))
+      raise_input_error(where, "the input \"" + model_.input_names[i] +
+                                   "\" is missing; inputs are known quantities and must be given on every row");
+    if (std::isinf(inputs[i]))
+      raise_input_error(where, "the input \"" + model_.input_names[i] + "\": expected a finite number, got " +
+                                   number_text(inputs[i]));
+  }
+  if (record.innovation.size() != static_cast<Eigen::Index>(m)) record = make_innovation_record(static_cast<int>(m));
+
+  const bool predicted = rows_processed_ > 0;
+  if (predicted) {
+    saved_mean_ = mean_;
+    saved_covariance_ = covariance_;
+    predict(transition_, p > 0 ? last_inputs_.data() : nullptr);
+  }
+  const StepStatus status = update(values.data(), record);
+  if (status != StepStatus::ok) {
+    if (predicted) {
+      mean_.swap(saved_mean_);
+      covariance_.swap(saved_covariance_);
+    }
+    return status;
+  }
+  for (std::size_t i = 0; i < p; ++i) last_inputs_(static_cast<Eigen::Index>(i)) = inputs[i];
+  ++rows_processed_;
+  return StepStatus::ok;
+}
+
+FilterState KalmanFilter::state() const { return FilterState{mean_, covariance_, rows_processed_, last_inputs_}; }
+
+void KalmanFilter::restore(const FilterState& state) {
+  validate_filter_state(state, model_, "filter state");
+  mean_ = state.mean;
+  covariance_ = state.covariance;
+  rows_processed_ = state.rows_processed;
+  last_inputs_ = state.last_inputs;
 }
 
 }  // namespace statewise

@@ -125,6 +125,13 @@ void check_shape(const Eigen::MatrixXd& matrix, Eigen::Index rows, Eigen::Index 
 
 }  // namespace
 
+void validate_covariance(const Eigen::MatrixXd& matrix, const std::string& file_name, const std::string& key) {
+  if (matrix.rows() != matrix.cols())
+    raise_input_error({file_name, 0, 0, key}, "expected a square matrix, got " + shape(matrix.rows(), matrix.cols()));
+  check_finite(matrix, file_name, key);
+  check_covariance(matrix, file_name, key);
+}
+
 void validate_model(const StateSpaceModel& model, const std::string& file_name) {
   const Eigen::Index n = model.A.rows();
   const Eigen::Index m = static_cast<Eigen::Index>(model.observation_names.size());

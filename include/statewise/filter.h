@@ -5,7 +5,9 @@
 /// any subset of channels missing, the Joseph-form covariance update and the exact Gaussian
 /// log-likelihood of the observed values. No heap allocation happens per row.
 
+#include <cstdint>
 #include <limits>
+#include <span>
 
 #include <Eigen/Core>
 
@@ -51,7 +53,18 @@ void predict_moments(const Transition& transition, const Eigen::VectorXd& mean, 
                      const double* inputs, Eigen::VectorXd& predicted_mean, Eigen::MatrixXd& predicted_covariance,
                      Eigen::MatrixXd& workspace);
 
-/// The online Kalman filter for one model. Typical use per row t:
+/// A filter's state between two rows: all it takes to stop (a logger restarting, a job killed) and
+/// resume later with exactly the estimates an uninterrupted run would give. filter_state.h writes
+/// and reads it as JSON text.
+struct FilterState {
+  Eigen::VectorXd mean;              ///< n: the mean after the last processed row (the prior mean before any)
+  Eigen::MatrixXd covariance;        ///< n×n: its covariance, symmetric positive semidefinite
+  std::uint64_t rows_processed = 0;  ///< rows processed by KalmanFilter::step(); 0 = at the initial prior
+  Eigen::VectorXd last_inputs;       ///< p: the inputs of the last processed row, which drive the next prediction
+};
+
+/// The online Kalman filter for one model. A logger feeds it one row at a time with step(); a
+/// program that needs other transitions per row calls predict() and update() itself:
 /// `if (t > 0) filter.predict(transition, inputs_of_row_t_minus_1); filter.update(values_of_row_t, record);`
 class KalmanFilter {
  public:
@@ -76,6 +89,26 @@ class KalmanFilter {
   /// On a non-ok status the state is left as it was before the call.
   StepStatus update(const double* values, InnovationRecord& record);
 
+  /// Processes the next row of a log, rows one model step apart: unless it is the first row
+  /// (rows_processed() == 0), predicts from the previous row with that row's inputs, then updates
+  /// with `values`. `values` holds the m channel values in model order (NaN = missing); `inputs` the
+  /// p inputs of this row (known quantities; they act on the step that follows it). `record`
+  /// receives the row's innovations (sized on first use). Bad arguments raise InputError naming the
+  /// row and the value, e.g. `row 13: values: expected 2 channel values (probe_a, probe_b), got 3`:
+  /// a wrong count, an infinite value, a missing (NaN) or infinite input. Numerical trouble is the
+  /// returned status, never an exception; then the filter is exactly as before the call and the
+  /// row is not counted, so the caller may log it and go on with the next row.
+  StepStatus step(std::span<const double> values, std::span<const double> inputs, InnovationRecord& record);
+
+  /// Rows processed by step() since construction, reset() or restore().
+  std::uint64_t rows_processed() const { return rows_processed_; }
+  /// The state to save between rows (see filter_state.h for JSON text).
+  FilterState state() const;
+  /// Resumes from a saved state. Raises InputError naming the field (`filter state: mean: ...`) when
+  /// it does not fit the model: wrong sizes, values that are not finite, a covariance that is not
+  /// symmetric positive semidefinite.
+  void restore(const FilterState& state);
+
   /// Current mean (filtered after update, predicted after predict).
   const Eigen::VectorXd& mean() const { return mean_; }
   /// Current covariance (its finite part P_* during the exact diffuse phase).
@@ -94,6 +127,7 @@ class KalmanFilter {
     Eigen::VectorXd v, whitened;
   };
   StateSpaceModel model_;
+  Transition transition_;  // the model's own, for step()
   Eigen::VectorXd mean_;
   Eigen::MatrixXd covariance_;
   Eigen::MatrixXd identity_minus_gain_, product_, predicted_workspace_;
@@ -104,6 +138,10 @@ class KalmanFilter {
   Eigen::MatrixXd diffuse_;     // P_inf while diffuse_phase_
   bool diffuse_phase_ = false;
   StepStatus diffuse_update(const double* values, InnovationRecord& record);
+  std::uint64_t rows_processed_ = 0;
+  Eigen::VectorXd last_inputs_;
+  Eigen::VectorXd saved_mean_;  // the state before step()'s prediction, to undo it on failure
+  Eigen::MatrixXd saved_covariance_;
 };
 
 /// Creates an InnovationRecord sized for m channels.

@@ -85,6 +85,10 @@ const char* domain_name(TimeDomain domain);
 /// shortest round-trip form, so that parse_model(write_model(m)) reproduces m exactly.
 std::string write_model(const StateSpaceModel& model);
 
+/// Checks that `matrix` is a covariance: square, finite, symmetric within kSymmetryTolerance and
+/// positive semidefinite within kDefinitenessTolerance; raises InputError naming `file_name` and `key`.
+void validate_covariance(const Eigen::MatrixXd& matrix, const std::string& file_name, const std::string& key);
+
 /// Relative tolerance for the symmetry check: |M_ij - M_ji| <= kSymmetryTolerance * max|M|.
 inline constexpr double kSymmetryTolerance = 1e-9;
 /// Relative tolerance for semidefiniteness: smallest eigenvalue >= -kDefinitenessTolerance * max|eigenvalue|.

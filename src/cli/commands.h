@@ -45,6 +45,7 @@ struct EstimateOptions {
   std::string duplicates = "error";        // --duplicates error|first|last|mean
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
   TrustOptions trust;                      // --reject, --numerics, --stuck, --lags, --plot, --innovations
+  std::string format = "csv";              // --format: csv, tsv or jsonl
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.

@@ -76,7 +76,12 @@ void add_channel_warnings(RunReport& report) {
 
 // The estimates table's format: the optional columns follow --reject and --innovations.
 TableFormat table_format(const EstimateOptions& options, bool innovations) {
-  return TableFormat{',', options.digits, !options.trust.reject.empty(), innovations};
+  TableFormat format;
+  format.digits = options.digits;
+  format.syntax = parse_table_syntax(options.format, {"--format", 0, 0, ""});
+  format.rejected_column = !options.trust.reject.empty();
+  format.innovations = innovations;
+  return format;
 }
 
 RunReport start_report(const char* command, const EstimateOptions& options, const StateSpaceModel& model) {

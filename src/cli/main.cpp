@@ -7,6 +7,7 @@
 
 #include <CLI/CLI.hpp>
 
+#include "cli/cli_definition.h"
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
 #include "cli/output_file.h"
@@ -18,18 +19,24 @@ namespace {
 using statewise::cli::EstimateOptions;
 
 void add_estimate_options(CLI::App& command, EstimateOptions& options) {
-  command.add_option("-m,--model", options.model_path, "Model file (JSON, docs/model-format.md)")->required();
+  command.add_option("-m,--model", options.model_path, "Model file (JSON, docs/model-format.md)")
+      ->required()
+      ->type_name("FILE");
   command.add_option("input", options.input_path, "Log to read (CSV with a header row); - for standard input")
-      ->capture_default_str();
+      ->capture_default_str()
+      ->type_name("FILE");
   command.add_option("-o,--output", options.output_path, "Where to write the estimates; - for standard output")
-      ->capture_default_str();
-  command.add_option("--report", options.report_path, "Write a JSON report of the run to this file");
+      ->capture_default_str()
+      ->type_name("FILE");
+  command.add_option("--report", options.report_path, "Write a JSON report of the run to this file")->type_name("FILE");
   command.add_option("--delimiter", options.delimiter, "Field separator of the input: one character, or tab")
-      ->capture_default_str();
+      ->capture_default_str()
+      ->type_name("CHAR");
   command.add_option("--missing", options.missing_tokens,
                      "Extra cell text meaning 'no value' (repeatable), e.g. --missing -999; "
                      "empty, NA, NaN, nan and null always are")
-      ->allow_extra_args(false);
+      ->allow_extra_args(false)
+      ->type_name("TOKEN");
   command.add_option("--digits", options.digits, "Significant digits of output numbers; 0 = shortest exact")
       ->capture_default_str()
       ->check(CLI::Range(0, 17));
@@ -39,6 +46,7 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
       .add_option("--duplicates", options.duplicates,
                   "Rows with the same time: error, or merge them per channel: first, last or mean")
       ->capture_default_str();
+  statewise::cli::add_format_option(command, options.format);
 }
 
 void add_regular_option(CLI::App& command, EstimateOptions& options) {
@@ -171,14 +179,11 @@ int main(int argc, char** argv) {
   plot->add_option("-o,--output", plot_options.output_path, "Where to write the HTML page; - for standard output")
       ->capture_default_str();
   plot->add_option("--title", plot_options.title, "Title of the page");
+  complete_cli(app);  // after the last command: help, defaults in help, --print-cli-definition
 
   try {
     app.parse(argc, argv);
-  } catch (const CLI::CallForHelp& e) {
-    return app.exit(e);
-  } catch (const CLI::CallForAllHelp& e) {
-    return app.exit(e);
-  } catch (const CLI::CallForVersion& e) {
+  } catch (const CLI::Success& e) {  // --help, --version, help COMMAND, --print-cli-definition
     return app.exit(e);
   } catch (const CLI::ParseError& e) {
     return report_error(std::string(e.what()) + "; see 'statewise --help'", kExitBadInput);
