@@ -107,11 +107,11 @@ struct Gap {
 /// One row of the timeline: a log row (possibly merged from rows with the same time) or a row
 /// inserted on the --regular grid.
 struct TimelineRow {
-  ObservationRow
-      row;  ///< values (all NaN on inserted rows), inputs (held from the previous row when
-            ///< inserted), time text (formatted like the log's when inserted), line (0 when inserted)
+  /// Values (all NaN on inserted rows), inputs (held from the row before on inserted rows), time text
+  /// (written like the log's on inserted rows), line (0 on inserted rows).
+  ObservationRow row;
   bool inserted = false;   ///< true for a row on the --regular grid that the log did not have
-  std::size_t merged = 1;  ///< log rows merged into this one (see DuplicatePolicy)
+  std::size_t merged = 1;  ///< log rows merged into this one (see DuplicatePolicy); 0 when inserted
   double time = 0.0;       ///< seconds since the first row; 0 without a time column
   Gap gap;                 ///< from the previous timeline row; {0, 0} on the first row
 };
