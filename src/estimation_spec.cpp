@@ -4,6 +4,7 @@
 #include <map>
 #include <set>
 #include <sstream>
+#include <stdexcept>
 
 #include "detail/json_util.h"
 #include "detail/model_json.h"
@@ -15,29 +16,6 @@ namespace {
 
 using detail::JsonContext;
 using nlohmann::json;
-
-Eigen::MatrixXd& matrix_of(StateSpaceModel& model, ModelMatrix matrix) {
-  switch (matrix) {
-    case ModelMatrix::A:
-      return model.A;
-    case ModelMatrix::B:
-      return model.B;
-    case ModelMatrix::C:
-      return model.C;
-    case ModelMatrix::Q:
-      return model.Q;
-    case ModelMatrix::R:
-      return model.R;
-    case ModelMatrix::initial_mean:
-      break;
-  }
-  static Eigen::MatrixXd unused;
-  return unused;
-}
-
-const Eigen::MatrixXd& matrix_of(const StateSpaceModel& model, ModelMatrix matrix) {
-  return matrix_of(const_cast<StateSpaceModel&>(model), matrix);  // the same selection, read-only
-}
 
 double entry_value(const StateSpaceModel& model, ModelMatrix matrix, Eigen::Index row, Eigen::Index column) {
   if (matrix == ModelMatrix::initial_mean) return model.initial_mean(row);
@@ -335,6 +313,28 @@ class TemplateBuilder {
 };
 
 }  // namespace
+
+Eigen::MatrixXd& matrix_of(StateSpaceModel& model, ModelMatrix matrix) {
+  switch (matrix) {
+    case ModelMatrix::A:
+      return model.A;
+    case ModelMatrix::B:
+      return model.B;
+    case ModelMatrix::C:
+      return model.C;
+    case ModelMatrix::Q:
+      return model.Q;
+    case ModelMatrix::R:
+      return model.R;
+    case ModelMatrix::initial_mean:
+      break;
+  }
+  throw std::logic_error("matrix_of: the initial mean is a vector, not one of the model's matrices");
+}
+
+const Eigen::MatrixXd& matrix_of(const StateSpaceModel& model, ModelMatrix matrix) {
+  return matrix_of(const_cast<StateSpaceModel&>(model), matrix);  // the same selection, read-only
+}
 
 const char* matrix_key(ModelMatrix matrix) {
   switch (matrix) {

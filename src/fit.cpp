@@ -30,21 +30,6 @@ constexpr double kInvalidObjective = 1e30;
 
 bool is_covariance(ModelMatrix matrix) { return matrix == ModelMatrix::Q || matrix == ModelMatrix::R; }
 
-const Eigen::MatrixXd& matrix_of(const StateSpaceModel& model, ModelMatrix matrix) {
-  switch (matrix) {
-    case ModelMatrix::A:
-      return model.A;
-    case ModelMatrix::B:
-      return model.B;
-    case ModelMatrix::C:
-      return model.C;
-    case ModelMatrix::R:
-      return model.R;
-    default:
-      return model.Q;
-  }
-}
-
 // ---- Starting values and scales -----------------------------------------------------------------
 
 // Per channel, half the mean squared change between consecutive observed values: for a level plus

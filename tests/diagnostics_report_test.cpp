@@ -11,28 +11,12 @@
 
 #include "simulation.h"
 #include "statewise/report.h"
+#include "test_models.h"
 
 using namespace statewise;
+using testing::cold_room_model;
 
 namespace {
-
-StateSpaceModel cold_room_model() {
-  // The cold-room model of examples/cold-room (an invented demo model).
-  StateSpaceModel model;
-  model.state_names = {"air_temp", "warming_rate"};
-  model.observation_names = {"probe_a", "probe_b"};
-  model.A.resize(2, 2);
-  model.A << 1.0, 1.0, 0.0, 0.98;
-  model.B = Eigen::MatrixXd::Zero(2, 0);
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 1.0, 0.0;
-  model.Q = Eigen::Vector2d(0.0004, 0.00002).asDiagonal();
-  model.R = Eigen::Vector2d(0.01, 0.04).asDiagonal();
-  model.initial_mean = Eigen::Vector2d(-18.0, 0.0);
-  model.initial_covariance = Eigen::Vector2d(4.0, 0.01).asDiagonal();
-  validate_model(model, "test");
-  return model;
-}
 
 // A hand-made report with every section filled, for the word-for-word checks.
 RunReport sample_report() {

@@ -12,35 +12,14 @@
 #include <vector>
 
 #include "statewise/filter_state.h"
+#include "test_models.h"
 
 using namespace statewise;
+using testing::two_channel_model;
 
 namespace {
 
 constexpr double kMissing = std::numeric_limits<double>::quiet_NaN();
-
-// Two states, two channels with correlated noise, one input.
-StateSpaceModel model_with_input() {
-  StateSpaceModel model;
-  model.state_names = {"a", "b"};
-  model.observation_names = {"y1", "y2"};
-  model.input_names = {"u"};
-  model.A.resize(2, 2);
-  model.A << 0.9, 0.2, -0.1, 0.8;
-  model.B.resize(2, 1);
-  model.B << 0.5, -0.25;
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 0.5, 1.0;
-  model.Q.resize(2, 2);
-  model.Q << 0.3, 0.05, 0.05, 0.2;
-  model.R.resize(2, 2);
-  model.R << 0.5, 0.1, 0.1, 0.4;
-  model.initial_mean = Eigen::Vector2d(1.0, -2.0);
-  model.initial_covariance.resize(2, 2);
-  model.initial_covariance << 2.0, 0.3, 0.3, 1.0;
-  validate_model(model, "test");
-  return model;
-}
 
 // Row t's values and input: smooth made-up signals with some channels missing.
 std::vector<double> values_of(int t) {
@@ -60,7 +39,7 @@ std::string error_of(const std::function<void()>& action) {
 }  // namespace
 
 TEST_CASE("filter state: step() gives exactly the predict/update sequence the CLI runs") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   KalmanFilter by_step(model), by_hand(model);
   const Transition transition = model_transition(model);
   InnovationRecord a = make_innovation_record(2), b = make_innovation_record(2);
@@ -77,7 +56,7 @@ TEST_CASE("filter state: step() gives exactly the predict/update sequence the CL
 }
 
 TEST_CASE("filter state: a run saved as text and resumed matches an uninterrupted run bit for bit") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   KalmanFilter uninterrupted(model), first(model);
   InnovationRecord record;
   for (int t = 0; t < 17; ++t) {
@@ -107,7 +86,7 @@ TEST_CASE("filter state: a run saved as text and resumed matches an uninterrupte
 }
 
 TEST_CASE("filter state: the JSON text reads back to the very same doubles") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   FilterState state;
   state.mean = Eigen::Vector2d(0.1 + 0.2, -1e-300);
   state.covariance.resize(2, 2);
@@ -122,7 +101,7 @@ TEST_CASE("filter state: the JSON text reads back to the very same doubles") {
 }
 
 TEST_CASE("filter state: the text layout") {
-  StateSpaceModel model = model_with_input();
+  StateSpaceModel model = two_channel_model();
   FilterState state;
   state.mean = Eigen::Vector2d(1.5, -2);
   state.covariance = Eigen::Matrix2d::Identity();
@@ -144,7 +123,7 @@ TEST_CASE("filter state: the text layout") {
 }
 
 TEST_CASE("filter state: bad state text is reported with the file, the key and what was expected") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   const std::string good =
       R"({"statewise_filter_state": 1, "states": ["a", "b"], "rows_processed": 3, "mean": [1, 2],
           "covariance": [[1, 0], [0, 1]], "inputs": ["u"], "last_inputs": [0.5]})";
@@ -178,7 +157,7 @@ TEST_CASE("filter state: bad state text is reported with the file, the key and w
 }
 
 TEST_CASE("filter state: restore() checks a state built in code") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   KalmanFilter filter(model);
   FilterState state = filter.state();
   state.mean = Eigen::Vector3d(1, 2, 3);
@@ -194,7 +173,7 @@ TEST_CASE("filter state: restore() checks a state built in code") {
 }
 
 TEST_CASE("filter state: step() refuses bad rows with the row and the value, changing nothing") {
-  const StateSpaceModel model = model_with_input();
+  const StateSpaceModel model = two_channel_model();
   KalmanFilter filter(model);
   InnovationRecord record;
   REQUIRE(filter.step(values_of(0), inputs_of(0), record) == StepStatus::ok);

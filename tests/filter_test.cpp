@@ -7,8 +7,12 @@
 
 #include "joint_gaussian.h"
 #include "statewise/filter.h"
+#include "test_models.h"
+#include "simulation.h"
 
 using namespace statewise;
+using testing::two_channel_model;
+using testing::TestRandom;
 
 namespace {
 
@@ -26,43 +30,6 @@ StateSpaceModel local_level(double level_variance, double noise_variance) {
   validate_model(model, "test");
   return model;
 }
-
-// Two states, two channels with correlated noise, one input: exercises every matrix.
-StateSpaceModel two_channel_model() {
-  StateSpaceModel model;
-  model.state_names = {"a", "b"};
-  model.observation_names = {"y1", "y2"};
-  model.input_names = {"u"};
-  model.A.resize(2, 2);
-  model.A << 0.9, 0.2, -0.1, 0.8;
-  model.B.resize(2, 1);
-  model.B << 0.5, -0.25;
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 0.5, 1.0;
-  model.Q.resize(2, 2);
-  model.Q << 0.3, 0.05, 0.05, 0.2;
-  model.R.resize(2, 2);
-  model.R << 0.5, 0.1, 0.1, 0.4;
-  model.initial_mean = Eigen::Vector2d(1.0, -2.0);
-  model.initial_covariance.resize(2, 2);
-  model.initial_covariance << 2.0, 0.3, 0.3, 1.0;
-  validate_model(model, "test");
-  return model;
-}
-
-// Deterministic pseudo-random numbers for test data (a 64-bit linear congruential generator, Knuth's
-// MMIX constants), so the tests need no library generator whose sequence could change.
-struct TestRandom {
-  std::uint64_t state;
-  double uniform() {
-    state = state * 6364136223846793005ULL + 1442695040888963407ULL;
-    return static_cast<double>(state >> 11) * 0x1.0p-53;
-  }
-  double normal() {  // Box–Muller
-    const double u1 = uniform() + 1e-300, u2 = uniform();
-    return std::sqrt(-2.0 * std::log(u1)) * std::cos(2.0 * std::numbers::pi * u2);
-  }
-};
 
 double run_filter(const StateSpaceModel& model, const std::vector<double>& values, const std::vector<double>& inputs,
                   int rows) {

@@ -9,47 +9,13 @@
 #include <vector>
 
 #include "simulation.h"
+#include "test_models.h"
 
 using namespace statewise;
+using testing::cold_room_model;
+using testing::ill_conditioned_model;
 
 namespace {
-
-// The cold-room model of examples/cold-room (an invented demo model): two states, two probes.
-StateSpaceModel cold_room_model() {
-  StateSpaceModel model;
-  model.state_names = {"air_temp", "warming_rate"};
-  model.observation_names = {"probe_a", "probe_b"};
-  model.A.resize(2, 2);
-  model.A << 1.0, 1.0, 0.0, 0.98;
-  model.B = Eigen::MatrixXd::Zero(2, 0);
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 1.0, 0.0;
-  model.Q = Eigen::Vector2d(0.0004, 0.00002).asDiagonal();
-  model.R = Eigen::Vector2d(0.01, 0.04).asDiagonal();
-  model.initial_mean = Eigen::Vector2d(-18.0, 0.0);
-  model.initial_covariance = Eigen::Vector2d(4.0, 0.01).asDiagonal();
-  validate_model(model, "test");
-  return model;
-}
-
-// The ill-conditioned measurement of square_root_filter_test.cpp, δ = 2^-27: the plain update cannot
-// factor S on the first row.
-StateSpaceModel ill_conditioned_model() {
-  const double delta = std::ldexp(1.0, -27);
-  StateSpaceModel model;
-  model.state_names = {"a", "b", "c"};
-  model.observation_names = {"y1", "y2"};
-  model.A = Eigen::MatrixXd::Identity(3, 3);
-  model.B = Eigen::MatrixXd::Zero(3, 0);
-  model.C.resize(2, 3);
-  model.C << 1, 1, 1, 1, 1, 1 + delta;
-  model.Q = std::ldexp(1.0, -20) * Eigen::MatrixXd::Identity(3, 3);
-  model.R = delta * delta * Eigen::MatrixXd::Identity(2, 2);
-  model.initial_mean = Eigen::VectorXd::Zero(3);
-  model.initial_covariance = Eigen::MatrixXd::Identity(3, 3);
-  validate_model(model, "test");
-  return model;
-}
 
 }  // namespace
 
@@ -57,7 +23,7 @@ TEST_CASE("plain numerics switch to the square-root form where the plain update 
   // The plain update fails on the first row (square_root_filter_test.cpp shows why); the pass must redo
   // that row in square-root form from the same prediction and carry on, giving exactly what a
   // square-root filter gives from the start (same arithmetic from the same prior).
-  const StateSpaceModel model = ill_conditioned_model();
+  const StateSpaceModel model = ill_conditioned_model(std::ldexp(1.0, -27));
   const Transition transition = model_transition(model);
   const double rows[3][2] = {{1.0, 1.0 + std::ldexp(1.0, -28)},
                              {1.25, 1.25 + std::ldexp(3.0, -29)},

@@ -12,33 +12,13 @@
 
 #include "joint_gaussian.h"
 #include "simulation.h"
+#include "test_models.h"
 
 using namespace statewise;
+using testing::ill_conditioned_model;
+using testing::two_channel_model;
 
 namespace {
-
-// Two states, two channels with correlated noise, one input (as in filter_test.cpp).
-StateSpaceModel two_channel_model() {
-  StateSpaceModel model;
-  model.state_names = {"a", "b"};
-  model.observation_names = {"y1", "y2"};
-  model.input_names = {"u"};
-  model.A.resize(2, 2);
-  model.A << 0.9, 0.2, -0.1, 0.8;
-  model.B.resize(2, 1);
-  model.B << 0.5, -0.25;
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 0.5, 1.0;
-  model.Q.resize(2, 2);
-  model.Q << 0.3, 0.05, 0.05, 0.2;
-  model.R.resize(2, 2);
-  model.R << 0.5, 0.1, 0.1, 0.4;
-  model.initial_mean = Eigen::Vector2d(1.0, -2.0);
-  model.initial_covariance.resize(2, 2);
-  model.initial_covariance << 2.0, 0.3, 0.3, 1.0;
-  validate_model(model, "test");
-  return model;
-}
 
 double max_abs(const Eigen::MatrixXd& m) { return m.cwiseAbs().maxCoeff(); }
 
@@ -93,24 +73,6 @@ void quad_update(QuadMatrix& x, QuadMatrix& P, const QuadMatrix& H, Quad noise_v
   const QuadMatrix KHP = multiply(K, multiply(H, P));
   for (int i = 0; i < 3; ++i)
     for (int j = 0; j < 3; ++j) P(i, j) -= KHP(i, j);
-}
-
-// The ill-conditioned measurement model of the tests below: P0 = I (3 states), two channels
-// H = [[1, 1, 1], [1, 1, 1 + δ]], R = δ² I, A = I, Q = 2^-20 I.
-StateSpaceModel ill_conditioned_model(double delta) {
-  StateSpaceModel model;
-  model.state_names = {"a", "b", "c"};
-  model.observation_names = {"y1", "y2"};
-  model.A = Eigen::MatrixXd::Identity(3, 3);
-  model.B = Eigen::MatrixXd::Zero(3, 0);
-  model.C.resize(2, 3);
-  model.C << 1, 1, 1, 1, 1, 1 + delta;
-  model.Q = std::ldexp(1.0, -20) * Eigen::MatrixXd::Identity(3, 3);
-  model.R = delta * delta * Eigen::MatrixXd::Identity(2, 2);
-  model.initial_mean = Eigen::VectorXd::Zero(3);
-  model.initial_covariance = Eigen::MatrixXd::Identity(3, 3);
-  validate_model(model, "test");
-  return model;
 }
 
 }  // namespace

@@ -11,28 +11,12 @@
 
 #include "simulation.h"
 #include "statewise/filter.h"
+#include "test_models.h"
 
 using namespace statewise;
+using testing::cold_room_model;
 
 namespace {
-
-// The cold-room model of examples/cold-room (an invented demo model): two states, two probes.
-StateSpaceModel cold_room_model() {
-  StateSpaceModel model;
-  model.state_names = {"air_temp", "warming_rate"};
-  model.observation_names = {"probe_a", "probe_b"};
-  model.A.resize(2, 2);
-  model.A << 1.0, 1.0, 0.0, 0.98;
-  model.B = Eigen::MatrixXd::Zero(2, 0);
-  model.C.resize(2, 2);
-  model.C << 1.0, 0.0, 1.0, 0.0;
-  model.Q = Eigen::Vector2d(0.0004, 0.00002).asDiagonal();
-  model.R = Eigen::Vector2d(0.01, 0.04).asDiagonal();
-  model.initial_mean = Eigen::Vector2d(-18.0, 0.0);
-  model.initial_covariance = Eigen::Vector2d(4.0, 0.01).asDiagonal();
-  validate_model(model, "test");
-  return model;
-}
 
 // Filters `log` with `model` and returns the consistency results.
 ConsistencySummary filter_and_test(const StateSpaceModel& model, const testing::SimulatedLog& log) {

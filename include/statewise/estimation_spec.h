@@ -27,6 +27,12 @@ enum class ModelMatrix { A, B, C, Q, R, initial_mean };
 /// The model-file key of a matrix: "A", ..., "initial.mean".
 const char* matrix_key(ModelMatrix matrix);
 
+/// The matrix of `model` that `matrix` names (A, B, C, Q or R). ModelMatrix::initial_mean is a vector and
+/// raises std::logic_error (a programming error, never a user's).
+Eigen::MatrixXd& matrix_of(StateSpaceModel& model, ModelMatrix matrix);
+/// Read-only matrix_of().
+const Eigen::MatrixXd& matrix_of(const StateSpaceModel& model, ModelMatrix matrix);
+
 /// How a parameter is constrained, which decides how it is optimized.
 enum class ParameterKind {
   coefficient,      ///< any real number: entries of A, B, C, the initial mean, a covariance off the diagonal
