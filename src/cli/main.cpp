@@ -109,7 +109,8 @@ int main(int argc, char** argv) {
                    "Fixed-lag smoothing: stream the log and write each row as soon as K more rows have "
                    "arrived, estimated from the rows up to then; 0 = the filter's estimates")
       ->type_name("K")
-      ->check(CLI::NonNegativeNumber);
+      ->check(CLI::NonNegativeNumber)
+      ->default_str("off");  // not -1, the value that stands for "not given"
 
   ForecastOptions forecast_options;
   CLI::App* forecast = app.add_subcommand(
