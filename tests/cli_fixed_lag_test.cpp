@@ -18,11 +18,7 @@
 #include "cli_run.h"
 #include "run_command.h"
 
-using statewise::testing::CommandResult;
-using statewise::testing::parse_table;
-using statewise::testing::run_statewise;
-using statewise::testing::ScratchFolder;
-using statewise::testing::Table;
+using namespace statewise::testing;  // ScratchFolder, run_statewise, CommandResult, Table
 
 namespace {
 
