@@ -11,6 +11,7 @@ std::string write_report_json(const RunReport& report) {
   OrderedJson root = OrderedJson::object();
   root["statewise_version"] = STATEWISE_VERSION;
   root["command"] = report.command;
+  if (report.lag >= 0) root["lag"] = report.lag;
   root["model"] = report.model_path;
   root["input"] = report.input_path;
   root["rows"] = report.rows;

@@ -10,6 +10,7 @@
 #include <vector>
 
 #include "statewise/error.h"
+#include "test_models.h"
 
 using namespace statewise;
 
@@ -26,29 +27,7 @@ double relative_error(const Eigen::MatrixXd& actual, const Eigen::MatrixXd& expe
   return worst;
 }
 
-// Position and velocity driven by white-noise acceleration of spectral density q, with a known
-// acceleration input entering the velocity with gain -1 (gravity g as input: dv = -g dt).
-StateSpaceModel kinematic_model(double q) {
-  StateSpaceModel model;
-  model.state_names = {"position", "velocity"};
-  model.observation_names = {"height"};
-  model.input_names = {"g"};
-  model.A.resize(2, 2);
-  model.A << 0, 1, 0, 0;
-  model.B.resize(2, 1);
-  model.B << 0, -1;
-  model.C.resize(1, 2);
-  model.C << 1, 0;
-  model.Q.resize(2, 2);
-  model.Q << 0, 0, 0, q;
-  model.R = Eigen::MatrixXd::Constant(1, 1, 0.25);
-  model.initial_mean = Eigen::Vector2d(100.0, 0.0);
-  model.initial_covariance = Eigen::Vector2d(4.0, 1.0).asDiagonal();
-  model.time_column = "time";
-  model.domain = TimeDomain::continuous;
-  validate_model(model, "test");
-  return model;
-}
+using testing::kinematic_model;
 
 template <typename Action>
 std::string error_of(Action&& action) {

@@ -7,31 +7,13 @@
 
 #include "joint_gaussian.h"
 #include "statewise/smoother.h"
+#include "test_models.h"
 
 using namespace statewise;
 
 namespace {
 
-StateSpaceModel three_state_model() {
-  // A damped oscillator plus a drifting offset, two channels, one input; invented for the test.
-  StateSpaceModel model;
-  model.state_names = {"position", "velocity", "offset"};
-  model.observation_names = {"y1", "y2"};
-  model.input_names = {"u"};
-  model.A.resize(3, 3);
-  model.A << 0.95, 0.1, 0.0, -0.2, 0.9, 0.0, 0.0, 0.0, 1.0;
-  model.B.resize(3, 1);
-  model.B << 0.0, 0.1, 0.0;
-  model.C.resize(2, 3);
-  model.C << 1.0, 0.0, 1.0, 0.0, 1.0, 0.0;
-  model.Q = Eigen::Vector3d(0.01, 0.04, 0.001).asDiagonal();
-  model.R.resize(2, 2);
-  model.R << 0.2, 0.05, 0.05, 0.3;
-  model.initial_mean = Eigen::Vector3d(0.5, 0.0, 1.0);
-  model.initial_covariance = Eigen::Vector3d(1.0, 1.0, 4.0).asDiagonal();
-  validate_model(model, "test");
-  return model;
-}
+using testing::three_state_model;
 
 struct Smoothed {
   StateTrack track;

@@ -15,6 +15,7 @@ namespace statewise {
 /// Everything a run reports besides its rows.
 struct RunReport {
   std::string command;                             ///< "filter" or "smooth"
+  long long lag = -1;                              ///< smooth --lag K: K (written as "lag"); -1 = none
   std::string model_path;                          ///< the model file as given
   std::string input_path;                          ///< the log as given ("-" for standard input)
   std::size_t rows = 0;                            ///< rows read and estimated

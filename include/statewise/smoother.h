@@ -73,6 +73,41 @@ struct SmoothStatus {
   std::size_t pseudo_inverse_rows = 0;  ///< rows where P_{t+1|t} was singular and a pseudo-inverse was used
 };
 
+/// What one backward step needs from row t besides the smoothed moments of row t+1: the predicted
+/// moments x_{t+1|t}, P_{t+1|t} and the smoother gain J_t = P_{t|t} A' P_{t+1|t}^{-1}. They depend only
+/// on row t's filtered moments and the transition to row t+1, so a fixed-lag smoother (fixed_lag.h)
+/// computes them once per row and reuses them on every backward sweep.
+struct SmootherGain {
+  Eigen::VectorXd predicted_mean;        ///< x_{t+1|t}, n
+  Eigen::MatrixXd predicted_covariance;  ///< P_{t+1|t}, n×n
+  Eigen::MatrixXd gain;                  ///< J_t, n×n
+  Eigen::MatrixXd gain_transposed;       ///< J_t', n×n
+};
+
+/// Work matrices of the backward step, sized on first use so that later steps do not allocate.
+struct SmootherWorkspace {
+  Eigen::MatrixXd product, factor, covariance_difference, correction;
+  Eigen::VectorXd mean_difference;
+};
+
+/// Computes row t's SmootherGain from its filtered moments and the transition (with row t's p
+/// `inputs`, may be null when p = 0) that carries it to row t+1. The predictions come from
+/// predict_moments, the very same arithmetic as the forward pass. Returns false when P_{t+1|t} was
+/// singular and a pseudo-inverse was used instead of the inverse.
+bool compute_smoother_gain(const Transition& transition, const Eigen::VectorXd& filtered_mean,
+                           const Eigen::MatrixXd& filtered_covariance, const double* inputs, SmootherGain& gain,
+                           SmootherWorkspace& workspace);
+
+/// One RTS backward step (Rauch, Tung and Striebel 1965; Särkkä, Bayesian Filtering and Smoothing,
+/// 2013, section 8.2): from row t's filtered moments, its gain and row t+1's smoothed moments,
+///   x_{t|N} = x_{t|t} + J_t (x_{t+1|N} - x_{t+1|t}),  P_{t|N} = P_{t|t} + J_t (P_{t+1|N} - P_{t+1|t}) J_t',
+/// the covariance symmetrized. The outputs must not alias the inputs. Returns false when the result is
+/// NaN or infinite.
+bool apply_smoother_gain(const SmootherGain& gain, const Eigen::VectorXd& filtered_mean,
+                         const Eigen::MatrixXd& filtered_covariance, const Eigen::Ref<const Eigen::VectorXd>& next_mean,
+                         const Eigen::Ref<const Eigen::MatrixXd>& next_covariance, Eigen::Ref<Eigen::VectorXd> smoothed_mean,
+                         Eigen::Ref<Eigen::MatrixXd> smoothed_covariance, SmootherWorkspace& workspace);
+
 /// Runs the RTS backward pass in place over `track` (filtered moments in, smoothed moments out):
 ///   J_t = P_{t|t} A' P_{t+1|t}^{-1},
 ///   x_{t|N} = x_{t|t} + J_t (x_{t+1|N} - x_{t+1|t}),

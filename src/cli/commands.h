@@ -46,6 +46,7 @@ struct EstimateOptions {
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
   TrustOptions trust;                      // --reject, --numerics, --stuck, --lags, --plot, --innovations
   std::string format = "csv";              // --format: csv, tsv or jsonl
+  long long lag = -1;                      // --lag K (smooth): fixed-lag smoothing; -1 = off
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.
@@ -86,6 +87,9 @@ struct PlotCommandOptions {
 int run_filter(const EstimateOptions& options);
 /// `statewise smooth`: filters the whole log, then runs the RTS smoother backwards.
 int run_smooth(const EstimateOptions& options);
+/// `statewise smooth --lag K`: streams rows through the filter and a fixed-lag smoother, writing each
+/// row K rows later (cli/fixed_lag_command.cpp).
+int run_fixed_lag_smooth(const EstimateOptions& options);
 
 /// `statewise forecast`: filters a log, then writes predicted rows past its end.
 int run_forecast(const ForecastOptions& options);

@@ -3,6 +3,7 @@
 #include <memory>
 
 #include "cli/commands.h"
+#include "cli/estimate_helpers.h"
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
@@ -29,11 +30,7 @@ char parse_delimiter(const std::string& text) {
   return text[0];
 }
 
-namespace {
-
-// Transitions kept by the streaming filter: enough for every gap of a regular or step-based log,
-// bounded for an endless stream of ever-new gaps.
-constexpr std::size_t kStreamingCacheCapacity = 256;
+// The helpers below are shared with `smooth --lag` (cli/estimate_helpers.h).
 
 CsvOptions csv_options(const EstimateOptions& options) {
   return make_csv_options(options.delimiter, options.missing_tokens);
@@ -67,7 +64,7 @@ void add_timeline_warnings(RunReport& report, const Timeline& timeline, const Sp
   if (!spacing_warning.empty()) report.warnings.push_back(spacing_warning);
 }
 
-void add_channel_warnings(RunReport& report) {
+static void add_channel_warnings(RunReport& report) {
   for (const auto& channel : report.channels)
     if (channel.observed == 0)
       report.warnings.push_back("channel \"" + channel.name +
@@ -105,8 +102,6 @@ void finish_report(RunReport& report, const ForwardPass& pass, const EstimateOpt
   attach_diagnostics(report, pass, reader.display_name());
   if (!options.report_path.empty()) write_whole_file(options.report_path, write_report_json(report), options.input_path);
 }
-
-}  // namespace
 
 int run_filter(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);

@@ -104,6 +104,13 @@ int main(int argc, char** argv) {
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
   add_trust_options(*smooth, smooth_options.trust, true, true);
+  smooth
+      ->add_option("--lag", smooth_options.lag,
+                   "Fixed-lag smoothing: stream the log and write each row as soon as K more rows have "
+                   "arrived, estimated from the rows up to then; 0 = the filter's estimates")
+      ->type_name("K")
+      ->check(CLI::NonNegativeNumber)
+      ->default_str("off");  // not -1, the value that stands for "not given"
 
   ForecastOptions forecast_options;
   CLI::App* forecast = app.add_subcommand(
@@ -191,7 +198,8 @@ int main(int argc, char** argv) {
 
   try {
     if (filter->parsed()) return run_filter(filter_options);
-    if (smooth->parsed()) return run_smooth(smooth_options);
+    if (smooth->parsed())
+      return smooth_options.lag >= 0 ? run_fixed_lag_smooth(smooth_options) : run_smooth(smooth_options);
     if (forecast->parsed()) return run_forecast(forecast_options);
     if (check->parsed()) return run_check(check_options);
     if (discretize->parsed()) return run_discretize(discretize_options);
