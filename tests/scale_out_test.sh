@@ -48,12 +48,13 @@ for g in 1 2 3 4 5 6; do
 done
 
 # (b) One table split by group: the header once, then whole groups per job, output kept in order.
-# --block 2k makes several jobs out of this small table.
+# --block 6k makes several jobs (of two groups each) out of this small table.
 {
   head -n 1 table.csv | "$statewise" filter -m model.json --by sensor -
-  parallel --will-cite --sshlogin : --pipe --block 2k --header : --colsep , --group-by sensor -k \
+  parallel --will-cite --sshlogin : --joblog jobs.tsv --pipe --block 6k --header : --colsep , --group-by sensor -k \
     "$statewise" filter -m model.json --by sensor --no-header - < table.csv
 } > sharded.csv
+[ "$(wc -l < jobs.tsv)" -gt 2 ] || fail "recipe (b) ran $(($(wc -l < jobs.tsv) - 1)) job(s); expected several"
 "$statewise" filter -m model.json --by sensor table.csv -o local.csv
 [ "$(wc -l < local.csv)" -eq 1201 ] || fail "the local run wrote $(wc -l < local.csv) lines, expected 1201"
 cmp sharded.csv local.csv || fail "recipe (b): the sharded table differs from one local --by run"
