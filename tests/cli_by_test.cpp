@@ -286,4 +286,8 @@ TEST_CASE("--no-header leaves out the header line and a header-only table gives 
   folder.write("one.csv", "time,probe\n0,1\n");
   const CommandResult single = run_statewise(folder, "filter -m model.json --no-header one.csv");
   CHECK(single.out.rfind("0,", 0) == 0);
+  // Regression: the plot reads the table's header, which --no-header leaves out of the output only.
+  CHECK(run_statewise(folder, "filter -m model.json --no-header --plot bare.html one.csv").status == 0);
+  CHECK(run_statewise(folder, "filter -m model.json --plot full.html one.csv").status == 0);
+  CHECK(folder.read("bare.html") == folder.read("full.html"));
 }

@@ -297,7 +297,9 @@ int run_filter(const EstimateOptions& options) {
     if (!options.trust.plot_path.empty()) plot_table += text;
     output.write_buffer(text);
   };
-  if (options.header) EstimateTableWriter(model, EstimateKind::filtered, table_format(options, true)).append_header(buffer);
+  // The plot reads the table's header even when the output leaves it out.
+  EstimateTableWriter(model, EstimateKind::filtered, table_format(options, true))
+      .append_header(options.header ? buffer : plot_table);
   TableSink sink{buffer, nullptr, [&](std::string& text) {
                    if (output.interactive()) {
                      write_out(text);
