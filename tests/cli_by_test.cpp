@@ -230,31 +230,26 @@ TEST_CASE("--by: bad group columns are refused with status 2 naming them") {
   ScratchFolder folder;
   folder.write("model.json", kModel);
   folder.write("all.csv", kInterleaved);
-  SUBCASE("a column the header lacks") {
-    const CommandResult result = run_statewise(folder, "filter -m model.json --by sensors all.csv");
+  folder.write("empty.csv", "time,sensor,probe\n0,a,1\n0,,2\n");
+  const struct {
+    const char* arguments;
+    const char* error;
+  } cases[] = {
+      {"filter -m model.json --by sensors all.csv",  // a column the header lacks
+       "all.csv:1: no column \"sensors\" in the header for --by; did you mean \"sensor\"?"},
+      {"smooth -m model.json --by probe all.csv",  // a column the model reads
+       "--by: \"probe\" is a channel of the model; --by needs a column the model does not read"},
+      {"filter -m model.json --by sensor empty.csv",  // a row with an empty group name
+       "empty.csv:3:3: the group column \"sensor\" (--by) is empty; every row needs the name of its group"},
+      {"filter -m model.json --by sensor --plot p.html all.csv",
+       "--plot: draws one log and cannot be combined with --by; run the group to plot on its own"},
+  };
+  for (const auto& c : cases) {
+    INFO(c.arguments);
+    const CommandResult result = run_statewise(folder, c.arguments);
     CHECK(result.status == 2);
-    CHECK(result.err == "statewise: error: all.csv:1: no column \"sensors\" in the header for --by; did you mean "
-                        "\"sensor\"?\n");
-  }
-  SUBCASE("a column the model reads") {
-    const CommandResult result = run_statewise(folder, "smooth -m model.json --by probe all.csv");
-    CHECK(result.status == 2);
-    CHECK(result.err == "statewise: error: --by: \"probe\" is a channel of the model; --by needs a column the "
-                        "model does not read\n");
-  }
-  SUBCASE("a row with an empty group name") {
-    folder.write("empty.csv", "time,sensor,probe\n0,a,1\n0,,2\n");
-    const CommandResult result = run_statewise(folder, "filter -m model.json --by sensor empty.csv");
-    CHECK(result.status == 2);
-    CHECK(result.err == "statewise: error: empty.csv:3:3: the group column \"sensor\" (--by) is empty; every row "
-                        "needs the name of its group\n");
+    CHECK(result.err == std::string("statewise: error: ") + c.error + "\n");
     CHECK(result.out == "");
-  }
-  SUBCASE("--plot") {
-    const CommandResult result = run_statewise(folder, "filter -m model.json --by sensor --plot p.html all.csv");
-    CHECK(result.status == 2);
-    CHECK(result.err == "statewise: error: --plot: draws one log and cannot be combined with --by; run the group "
-                        "to plot on its own\n");
   }
 }
 
