@@ -47,6 +47,10 @@ struct EstimateOptions {
   TrustOptions trust;                      // --reject, --numerics, --stuck, --lags, --plot, --innovations
   std::string format = "csv";              // --format: csv, tsv or jsonl
   long long lag = -1;                      // --lag K (smooth): fixed-lag smoothing; -1 = off
+  bool header = true;                      // off with --no-header (filter, smooth)
+  std::string by;                          // --by COLUMN: one run per group; empty = one run (filter, smooth)
+  int threads = 0;                         // --threads N for --by; 0 = all cores
+  bool fail_fast = false;                  // --fail-fast: with --by, stop at the first failed group
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.
@@ -131,6 +135,8 @@ char parse_delimiter(const std::string& text);
 
 /// The options of `diagnose`: those of filter that make sense without an estimates table.
 void add_diagnose_options(CLI::App& command, EstimateOptions& options);
+/// Adds --by, --threads, --fail-fast and --no-header to filter or smooth (cli/grouping_options.cpp).
+void add_grouping_options(CLI::App& command, EstimateOptions& options);
 /// Adds --reject, --numerics, --stuck and --lags to a command, and --plot and --innovations when asked.
 void add_trust_options(CLI::App& command, TrustOptions& options, bool plot, bool innovations);
 /// The forward pass's options from the flags; raises InputError naming the flag for a bad value.

@@ -3,7 +3,8 @@
 #include <memory>
 
 #include "cli/commands.h"
-#include "cli/estimate_helpers.h"
+#include "cli/estimate_run.h"
+#include "cli/grouped_run.h"
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
@@ -29,8 +30,6 @@ char parse_delimiter(const std::string& text) {
                       "expected one character such as \",\" \";\" \"|\" or \"tab\", got \"" + text + "\"");
   return text[0];
 }
-
-// The helpers below are shared with `smooth --lag` (cli/estimate_helpers.h).
 
 CsvOptions csv_options(const EstimateOptions& options) {
   return make_csv_options(options.delimiter, options.missing_tokens);
@@ -64,22 +63,16 @@ void add_timeline_warnings(RunReport& report, const Timeline& timeline, const Sp
   if (!spacing_warning.empty()) report.warnings.push_back(spacing_warning);
 }
 
-static void add_channel_warnings(RunReport& report) {
+namespace {
+
+void add_channel_warnings(RunReport& report) {
   for (const auto& channel : report.channels)
     if (channel.observed == 0)
       report.warnings.push_back("channel \"" + channel.name +
                                 "\" has no observed values; its estimates come from the model alone");
 }
 
-// The estimates table's format: the optional columns follow --reject and --innovations.
-TableFormat table_format(const EstimateOptions& options, bool innovations) {
-  TableFormat format;
-  format.digits = options.digits;
-  format.syntax = parse_table_syntax(options.format, {"--format", 0, 0, ""});
-  format.rejected_column = !options.trust.reject.empty();
-  format.innovations = innovations;
-  return format;
-}
+}  // namespace
 
 RunReport start_report(const char* command, const EstimateOptions& options, const StateSpaceModel& model) {
   RunReport report;
@@ -90,8 +83,7 @@ RunReport start_report(const char* command, const EstimateOptions& options, cons
   return report;
 }
 
-void finish_report(RunReport& report, const ForwardPass& pass, const EstimateOptions& options,
-                   const CsvReader& reader) {
+void finish_report(RunReport& report, const ForwardPass& pass, const std::string& file) {
   const InnovationAccumulator& accumulator = pass.accumulator();
   report.rows = accumulator.rows();
   report.log_likelihood = accumulator.log_likelihood();
@@ -99,68 +91,98 @@ void finish_report(RunReport& report, const ForwardPass& pass, const EstimateOpt
   report.nis = accumulator.nis();
   add_channel_warnings(report);
   if (report.rows == 0) report.warnings.push_back("the log has no data rows");
-  attach_diagnostics(report, pass, reader.display_name());
-  if (!options.report_path.empty()) write_whole_file(options.report_path, write_report_json(report), options.input_path);
+  attach_diagnostics(report, pass, file);
 }
 
-int run_filter(const EstimateOptions& options) {
-  const StateSpaceModel model = load_model(options.model_path);
-  check_sort_flag(model, options.sort);
-  Timeline timeline(model, timeline_options(options),
-                    options.input_path == "-" ? "<stdin>" : options.input_path);
-  const ForwardPassOptions pass_options = forward_pass_options(options.trust);
-  CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
-  ObservationStream stream(reader, model);
-  OutputFile output(options.output_path, options.input_path);
+namespace {
 
+// Appends one table row through the sink: its lead column, then the caller's hook.
+template <typename AppendRow>
+void sink_row(TableSink& sink, AppendRow&& append_row) {
+  const std::size_t start = sink.buffer.size();
+  append_row(sink.buffer);
+  if (sink.lead != nullptr) sink.lead->apply(sink.buffer, start);
+  if (sink.after_row) sink.after_row(sink.buffer);
+}
+
+}  // namespace
+
+void write_report_file(const EstimateOptions& options, const RunReport& report) {
+  if (!options.report_path.empty())
+    write_whole_file(options.report_path, write_report_json(report), options.input_path);
+}
+
+void check_estimate_options(const StateSpaceModel& model, const EstimateOptions& options) {
+  check_sort_flag(model, options.sort);
+  (void)Timeline(model, timeline_options(options), options.input_path);
+  (void)forward_pass_options(options.trust);
+  (void)table_format(options, true);
+}
+
+TableFormat table_format(const EstimateOptions& options, bool innovations) {
+  TableFormat format;
+  format.digits = options.digits;
+  format.syntax = parse_table_syntax(options.format, {"--format", 0, 0, ""});
+  format.rejected_column = !options.trust.reject.empty();
+  format.innovations = innovations;
+  return format;
+}
+
+LeadColumn::LeadColumn(const std::string& name, const std::string& value, const TableFormat& format) {
+  // A one-column table in the same syntax quotes or escapes the name and the value as the table would.
+  const TableLayout layout({name}, format);
+  std::string row;
+  TableLayout::Row cells = layout.start_row(row);
+  cells.text(value);
+  cells.finish();
+  row.pop_back();  // the line break
+  if (format.syntax == TableSyntax::jsonl) {
+    cell_ = row.substr(1, row.size() - 2) + ",";  // `"name":"value",` from `{"name":"value"}`
+    inside_ = true;
+    return;
+  }
+  const char separator = format.syntax == TableSyntax::tsv ? '\t' : format.delimiter;
+  cell_ = row + separator;
+  layout.append_header(header_);
+  header_.back() = separator;  // the line break
+}
+
+void LeadColumn::apply(std::string& out, std::size_t row_start) const {
+  out.insert(row_start + (inside_ ? 1 : 0), cell_);
+}
+
+RunReport filter_rows(const StateSpaceModel& model, const EstimateOptions& options, const RowSource& rows,
+                      const std::string& file, ForwardPass& filter, TableSink& sink) {
+  Timeline timeline(model, timeline_options(options), file);
   const EstimateTableWriter writer(model, EstimateKind::filtered, table_format(options, true));
   TransitionCache transitions(model, kStreamingCacheCapacity);
   SpacingWatch spacing(model, options.regular_step);
-  ForwardPass filter(model, pass_options);
-  std::string buffer, plot_table;  // with --plot, the table is kept for the plot
-  auto write_out = [&]() {
-    if (!options.trust.plot_path.empty()) plot_table += buffer;
-    output.write_buffer(buffer);
-  };
-  writer.append_header(buffer);
   std::vector<double> previous_inputs;
   bool first = true;
-  read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
+  read_timeline(rows, file, timeline, options.sort, [&](TimelineRow& row) {
     if (!first)
       filter.predict(transitions.transition(row.gap),
                      previous_inputs.empty() ? nullptr : previous_inputs.data());
     const StepStatus status = filter.update(row.row.values.data(), row.row.line);
-    if (status != StepStatus::ok) fail_step(status, row_place(reader.display_name(), row));
+    if (status != StepStatus::ok) fail_step(status, row_place(file, row));
     spacing.add(row);
-    writer.append_row(buffer, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
-                      &filter.record(), filter.rejected(), filter.diffuse_covariance());
-    if (output.interactive()) {
-      write_out();
-      output.flush();
-    } else if (buffer.size() >= (1u << 16)) {
-      write_out();
-    }
+    sink_row(sink, [&](std::string& out) {
+      writer.append_row(out, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
+                        &filter.record(), filter.rejected(), filter.diffuse_covariance());
+    });
     previous_inputs = row.row.inputs;
     first = false;
   });
-  write_out();
-  output.commit();
   RunReport report = start_report("filter", options, model);
   add_timeline_warnings(report, timeline, spacing, options);
-  finish_report(report, filter, options, reader);
-  if (!options.trust.plot_path.empty()) write_plot_file(plot_table, options, report);
-  return kExitSuccess;
+  finish_report(report, filter, file);
+  return report;
 }
 
-int run_smooth(const EstimateOptions& options) {
-  const StateSpaceModel model = load_model(options.model_path);
-  check_sort_flag(model, options.sort);
-  Timeline timeline(model, timeline_options(options),
-                    options.input_path == "-" ? "<stdin>" : options.input_path);
+RunReport smooth_rows(const StateSpaceModel& model, const EstimateOptions& options, const RowSource& source,
+                      const std::string& file, TableSink& sink, std::string* plot_table) {
+  Timeline timeline(model, timeline_options(options), file);
   const ForwardPassOptions pass_options = forward_pass_options(options.trust);
-  CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
-  ObservationStream stream(reader, model);
-  OutputFile output(options.output_path, options.input_path);
 
   // The whole timeline in memory, with the transition that reaches each row from the one before.
   ObservationSeries series;
@@ -170,7 +192,7 @@ int run_smooth(const EstimateOptions& options) {
   TransitionCache transitions(model);
   TransitionSchedule schedule;
   SpacingWatch spacing(model, options.regular_step);
-  read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
+  read_timeline(source, file, timeline, options.sort, [&](TimelineRow& row) {
     if (series.rows() > 0) schedule.index_of_step.push_back(transitions.index(row.gap));
     series.push_back(row.row);
     spacing.add(row);
@@ -179,7 +201,6 @@ int run_smooth(const EstimateOptions& options) {
   const std::size_t rows = series.rows();
   if (schedule.transitions.size() <= 1) schedule.index_of_step.clear();  // one transition serves every step
   if (schedule.transitions.empty()) schedule.transitions.push_back(model_transition(model));
-  const std::string& file = reader.display_name();
 
   // Forward pass: filter every row, keeping the filtered moments for the backward pass.
   ForwardPass filter(model, pass_options);
@@ -189,7 +210,7 @@ int run_smooth(const EstimateOptions& options) {
   // plot), each row's innovations and their standard deviations.
   const auto m = static_cast<std::size_t>(model.channel_count());
   const bool gated = !options.trust.reject.empty();
-  const bool keep_innovations = options.trust.innovations || !options.trust.plot_path.empty();
+  const bool keep_innovations = options.trust.innovations || plot_table != nullptr;
   std::vector<double> used_values, innovations;
   std::vector<unsigned char> rejected;
   for (std::size_t t = 0; t < rows; ++t) {
@@ -232,10 +253,7 @@ int run_smooth(const EstimateOptions& options) {
 
   const EstimateTableWriter writer(model, EstimateKind::smoothed, table_format(options, options.trust.innovations));
   const EstimateTableWriter plot_writer(model, EstimateKind::smoothed, table_format(options, true));
-  const bool plot = !options.trust.plot_path.empty();
-  std::string buffer, plot_table;
-  writer.append_header(buffer);
-  if (plot) plot_writer.append_header(plot_table);
+  if (plot_table != nullptr) plot_writer.append_header(*plot_table);
   InnovationRecord record = make_innovation_record(model.channel_count());
   for (std::size_t t = 0; t < rows; ++t) {
     const double* values = gated ? &used_values[t * m] : series.row_values(t);
@@ -245,14 +263,13 @@ int run_smooth(const EstimateOptions& options) {
         record.innovation(static_cast<Eigen::Index>(c)) = innovations[2 * (t * m + c)];
         record.innovation_sd(static_cast<Eigen::Index>(c)) = innovations[2 * (t * m + c) + 1];
       }
-    writer.append_row(buffer, series.time_text(t), values, track.mean(t), track.covariance(t), &record, row_rejected);
-    if (plot)
-      plot_writer.append_row(plot_table, series.time_text(t), values, track.mean(t), track.covariance(t), &record,
+    sink_row(sink, [&](std::string& out) {
+      writer.append_row(out, series.time_text(t), values, track.mean(t), track.covariance(t), &record, row_rejected);
+    });
+    if (plot_table != nullptr)
+      plot_writer.append_row(*plot_table, series.time_text(t), values, track.mean(t), track.covariance(t), &record,
                              row_rejected);
-    if (buffer.size() >= (1u << 16)) output.write_buffer(buffer);
   }
-  output.write_buffer(buffer);
-  output.commit();
 
   RunReport report = start_report("smooth", options, model);
   if (smoothed.pseudo_inverse_rows > 0)
@@ -262,7 +279,67 @@ int run_smooth(const EstimateOptions& options) {
   if (diffuse_unresolved)
     report.warnings.push_back("the data do not determine every diffuse initial state (no channel sees it); "
                               "their estimates are not meaningful");
-  finish_report(report, filter, options, reader);
+  finish_report(report, filter, file);
+  return report;
+}
+
+int run_filter(const EstimateOptions& options) {
+  if (!options.by.empty()) return run_grouped(options, GroupedCommand::filter);
+  const StateSpaceModel model = load_model(options.model_path);
+  check_estimate_options(model, options);
+  const ForwardPassOptions pass_options = forward_pass_options(options.trust);
+  CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
+  ObservationStream stream(reader, model);
+  OutputFile output(options.output_path, options.input_path);
+
+  std::string buffer, plot_table;  // with --plot, the table is kept for the plot
+  auto write_out = [&](std::string& text) {
+    if (!options.trust.plot_path.empty()) plot_table += text;
+    output.write_buffer(text);
+  };
+  // The plot reads the table's header even when the output leaves it out.
+  EstimateTableWriter(model, EstimateKind::filtered, table_format(options, true))
+      .append_header(options.header ? buffer : plot_table);
+  TableSink sink{buffer, nullptr, [&](std::string& text) {
+                   if (output.interactive()) {
+                     write_out(text);
+                     output.flush();
+                   } else if (text.size() >= (1u << 16)) {
+                     write_out(text);
+                   }
+                 }};
+  ForwardPass filter(model, pass_options);
+  const RunReport report = filter_rows(
+      model, options, [&stream](ObservationRow& row) { return stream.next(row); }, reader.display_name(), filter, sink);
+  write_out(buffer);
+  output.commit();
+  write_report_file(options, report);
+  if (!options.trust.plot_path.empty()) write_plot_file(plot_table, options, report);
+  return kExitSuccess;
+}
+
+int run_smooth(const EstimateOptions& options) {
+  if (!options.by.empty()) return run_grouped(options, GroupedCommand::smooth);
+  const StateSpaceModel model = load_model(options.model_path);
+  check_estimate_options(model, options);
+  CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
+  ObservationStream stream(reader, model);
+  OutputFile output(options.output_path, options.input_path);
+
+  const bool plot = !options.trust.plot_path.empty();
+  std::string buffer, plot_table;
+  if (options.header)
+    EstimateTableWriter(model, EstimateKind::smoothed, table_format(options, options.trust.innovations))
+        .append_header(buffer);
+  TableSink sink{buffer, nullptr, [&](std::string& text) {
+                   if (text.size() >= (1u << 16)) output.write_buffer(text);
+                 }};
+  const RunReport report =
+      smooth_rows(model, options, [&stream](ObservationRow& row) { return stream.next(row); }, reader.display_name(),
+                  sink, plot ? &plot_table : nullptr);
+  output.write_buffer(buffer);
+  output.commit();
+  write_report_file(options, report);
   if (plot) write_plot_file(plot_table, options, report);
   return kExitSuccess;
 }

@@ -6,7 +6,7 @@
 #include <vector>
 
 #include "cli/commands.h"
-#include "cli/estimate_helpers.h"
+#include "cli/estimate_run.h"
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
@@ -49,6 +49,10 @@ class PendingRows {
 }  // namespace
 
 int run_fixed_lag_smooth(const EstimateOptions& options) {
+  if (!options.by.empty())
+    raise_input_error({"--lag", 0, 0, ""},
+                      "fixed-lag smoothing streams one log and cannot be combined with --by; run smooth --by "
+                      "without --lag, or one smooth --lag per sensor");
   const StateSpaceModel model = load_model(options.model_path);
   if (model.has_diffuse_states())
     raise_input_error({options.model_path, 0, 0, "initial.diffuse"},
@@ -77,7 +81,7 @@ int run_fixed_lag_smooth(const EstimateOptions& options) {
   PendingRows pending(lag);
 
   std::string buffer, plot_table;
-  writer.append_header(buffer);
+  if (options.header) writer.append_header(buffer);
   if (plot) plot_writer.append_header(plot_table);
   if (output.interactive()) {  // the header at once: the first row may be K rows away
     output.write_buffer(buffer);
@@ -141,7 +145,8 @@ int run_fixed_lag_smooth(const EstimateOptions& options) {
                               std::to_string(smoother.status().pseudo_inverse_rows) +
                               " rows; the smoother used a pseudo-inverse there (Q may be zero in some direction)");
   add_timeline_warnings(report, timeline, spacing, options);
-  finish_report(report, filter, options, reader);
+  finish_report(report, filter, reader.display_name());
+  write_report_file(options, report);
   if (plot) write_plot_file(plot_table, options, report);
   return kExitSuccess;
 }

@@ -40,19 +40,25 @@ void check_sort_flag(const StateSpaceModel& model, bool sort) {
 
 void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
                    const std::function<void(TimelineRow&)>& visit) {
+  read_timeline([&stream](ObservationRow& row) { return stream.next(row); }, stream.reader().display_name(), timeline,
+                sort, visit);
+}
+
+void read_timeline(const std::function<bool(ObservationRow&)>& next, const std::string& file, Timeline& timeline,
+                   bool sort, const std::function<void(TimelineRow&)>& visit) {
   TimelineRow out;
   if (sort) {
     std::vector<ObservationRow> rows;
     ObservationRow row;
-    while (stream.next(row)) rows.push_back(row);
-    sort_rows_by_time(rows, stream.reader().display_name(), timeline.time_column());
+    while (next(row)) rows.push_back(row);
+    sort_rows_by_time(rows, file, timeline.time_column());
     for (const ObservationRow& sorted : rows) {
       timeline.push(sorted);
       while (timeline.pop(out)) visit(out);
     }
   } else {
     ObservationRow row;
-    while (stream.next(row)) {
+    while (next(row)) {
       timeline.push(row);
       while (timeline.pop(out)) visit(out);
     }

@@ -27,6 +27,9 @@ void check_sort_flag(const StateSpaceModel& model, bool sort);
 /// calls `visit` with each timeline row, in order.
 void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
                    const std::function<void(TimelineRow&)>& visit);
+/// The same for rows from `next` (fills a row, false at the end); `file` names the log in messages.
+void read_timeline(const std::function<bool(ObservationRow&)>& next, const std::string& file, Timeline& timeline,
+                   bool sort, const std::function<void(TimelineRow&)>& visit);
 
 /// Where a timeline row came from, for messages: `file:line`, or `file: the row inserted at TIME`.
 std::string row_place(const std::string& file, const TimelineRow& row);

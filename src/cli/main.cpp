@@ -100,6 +100,7 @@ int main(int argc, char** argv) {
   add_estimate_options(*filter, filter_options);
   add_regular_option(*filter, filter_options);
   add_trust_options(*filter, filter_options.trust, true, false);
+  add_grouping_options(*filter, filter_options);
   CLI::App* smooth = app.add_subcommand("smooth", "Estimate every row from the whole log (RTS smoother)");
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
@@ -111,6 +112,7 @@ int main(int argc, char** argv) {
       ->type_name("K")
       ->check(CLI::NonNegativeNumber)
       ->default_str("off");  // not -1, the value that stands for "not given"
+  add_grouping_options(*smooth, smooth_options);
 
   ForecastOptions forecast_options;
   CLI::App* forecast = app.add_subcommand(
