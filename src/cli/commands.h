@@ -46,6 +46,11 @@ struct EstimateOptions {
   double regular_step = 0.0;               // --regular STEP seconds; 0 = off (filter, smooth)
   TrustOptions trust;                      // --reject, --numerics, --stuck, --lags, --plot, --innovations
   std::string format = "csv";              // --format: csv, tsv or jsonl
+  bool quiet = false;                      // --quiet: no progress line, no warnings on stderr
+  std::string state_path;                  // --state FILE (filter); empty = none
+  bool append = false;                     // --append (filter)
+  bool reset = false;                      // --reset (filter, with --state)
+  bool no_wait = false;                    // --no-wait (filter, with --state)
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.

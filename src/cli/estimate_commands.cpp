@@ -1,11 +1,14 @@
 // `statewise filter` and `statewise smooth`.
 
+#include <iostream>
 #include <memory>
 
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
+#include "cli/progress.h"
+#include "cli/state_file.h"
 #include "statewise/csv.h"
 #include "statewise/diagnostics.h"
 #include "statewise/discretize.h"
@@ -111,25 +114,39 @@ void finish_report(RunReport& report, const ForwardPass& pass, const EstimateOpt
 int run_filter(const EstimateOptions& options) {
   const StateSpaceModel model = load_model(options.model_path);
   check_sort_flag(model, options.sort);
-  Timeline timeline(model, timeline_options(options),
-                    options.input_path == "-" ? "<stdin>" : options.input_path);
+  // With --state: lock, read and check the saved state before anything is written.
+  StateSession session(options, model);
+  const SeriesState* resume = session.resume_point();
+  const std::string input_name = options.input_path == "-" ? "<stdin>" : options.input_path;
+  Timeline timeline(model, timeline_options(options), input_name);
   const ForwardPassOptions pass_options = forward_pass_options(options.trust);
+  ForwardPass filter(model, pass_options);
+  std::vector<double> previous_inputs;
+  std::uint64_t rows_before = 0;
+  if (resume) {
+    if (resume->rows > 0)
+      timeline.resume(resume->position, {options.state_path, 0, 0, "groups[\"\"].last_time.text"});
+    filter.resume(resume->pass);
+    previous_inputs = resume->position.last_inputs;
+    rows_before = resume->rows;
+  }
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
-  OutputFile output(options.output_path, options.input_path);
+  OutputFile output(options.output_path, options.input_path, options.append);
+  session.prepare_output(output);
 
   const EstimateTableWriter writer(model, EstimateKind::filtered, table_format(options, true));
   TransitionCache transitions(model, kStreamingCacheCapacity);
   SpacingWatch spacing(model, options.regular_step);
-  ForwardPass filter(model, pass_options);
+  ProgressLine progress(options.input_path, options.quiet);
+  ResumeSkipper skipper(resume, model);
   std::string buffer, plot_table;  // with --plot, the table is kept for the plot
   auto write_out = [&]() {
     if (!options.trust.plot_path.empty()) plot_table += buffer;
     output.write_buffer(buffer);
   };
-  writer.append_header(buffer);
-  std::vector<double> previous_inputs;
-  bool first = true;
+  if (!options.append || output.length() == 0) writer.append_header(buffer);
+  bool first = rows_before == 0;
   read_timeline(stream, timeline, options.sort, [&](TimelineRow& row) {
     if (!first)
       filter.predict(transitions.transition(row.gap),
@@ -139,7 +156,9 @@ int run_filter(const EstimateOptions& options) {
     spacing.add(row);
     writer.append_row(buffer, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
                       &filter.record(), filter.rejected(), filter.diffuse_covariance());
-    if (output.interactive()) {
+    if (output.interactive() && !reader.line_buffered()) {
+      // A live stream: the row goes out before the program waits for the next one. Rows already in
+      // the input buffer (a fast pipe) are written in blocks like a file's.
       write_out();
       output.flush();
     } else if (buffer.size() >= (1u << 16)) {
@@ -147,10 +166,31 @@ int run_filter(const EstimateOptions& options) {
     }
     previous_inputs = row.row.inputs;
     first = false;
-  });
+    progress.update(filter.rows(), reader.bytes_read());
+  }, [&](const ObservationRow& row) { return skipper.skip(row); });
+  progress.finish();
   write_out();
+  output.flush();
+  test_exit_point("after-output-write");
   output.commit();
+  test_exit_point("after-output-fsync");
+  if (session.active()) {
+    SeriesState series = resume ? *resume : SeriesState{};
+    series.has_time = timeline.has_time();
+    series.log_rows = skipper.log_rows();
+    series.rows = rows_before + timeline.rows();
+    if (timeline.rows() > 0) series.position = timeline.position();
+    series.pass = filter.state();
+    session.save(series, output);
+    if (skipper.skipped() > 0)
+      session.warn(std::to_string(skipper.skipped()) + " rows of " + input_name +
+                   " were skipped: the state file " + options.state_path + " already accounts for them");
+  }
   RunReport report = start_report("filter", options, model);
+  for (const std::string& warning : session.warnings()) {
+    if (!options.quiet) std::cerr << "statewise: warning: " << warning << '\n';
+    report.warnings.push_back(warning);
+  }
   add_timeline_warnings(report, timeline, spacing, options);
   finish_report(report, filter, options, reader);
   if (!options.trust.plot_path.empty()) write_plot_file(plot_table, options, report);

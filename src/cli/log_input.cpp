@@ -39,12 +39,14 @@ void check_sort_flag(const StateSpaceModel& model, bool sort) {
 }
 
 void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
-                   const std::function<void(TimelineRow&)>& visit) {
+                   const std::function<void(TimelineRow&)>& visit,
+                   const std::function<bool(const ObservationRow&)>& skip) {
   TimelineRow out;
   if (sort) {
     std::vector<ObservationRow> rows;
     ObservationRow row;
-    while (stream.next(row)) rows.push_back(row);
+    while (stream.next(row))
+      if (!skip || !skip(row)) rows.push_back(row);
     sort_rows_by_time(rows, stream.reader().display_name(), timeline.time_column());
     for (const ObservationRow& sorted : rows) {
       timeline.push(sorted);
@@ -53,6 +55,7 @@ void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
   } else {
     ObservationRow row;
     while (stream.next(row)) {
+      if (skip && skip(row)) continue;
       timeline.push(row);
       while (timeline.pop(out)) visit(out);
     }
