@@ -80,6 +80,8 @@ pid_t start_filter(const ScratchFolder& folder, int input, int output, int error
     dup2(input, STDIN_FILENO);
     dup2(output >= 0 ? output : null, STDOUT_FILENO);
     dup2(error >= 0 ? error : null, STDERR_FILENO);
+    // Only the three standard descriptors: a copy of a pipe's writing end would keep its input open.
+    for (int descriptor = 3; descriptor < 1024; ++descriptor) close(descriptor);
     std::vector<std::string> all = {STATEWISE_BINARY, "filter", "-m", "model.json", "-"};
     all.insert(all.end(), args.begin(), args.end());
     std::vector<char*> argv;
