@@ -3,7 +3,7 @@
 # 2 channels, 10% missing) read from the file, read through a pipe (`cat log | statewise filter -`), and
 # read through a pipe with the estimates written to a pipe too. Prints, per way, the best wall time of
 # REPEAT runs and the largest peak resident memory (GNU time's %M, in KB).
-# Usage: bench/stream.sh [ROWS] [REPEAT] [STATEWISE]   (STATEWISE defaults to build/statewise)
+# Usage: [LOG=FILE] bench/stream.sh [ROWS] [REPEAT] [STATEWISE]   (STATEWISE defaults to build/statewise)
 set -eu
 rows=${1:-10000000}
 repeat=${2:-3}
@@ -11,8 +11,9 @@ here=$(cd "$(dirname "$0")" && pwd)
 bin=${3:-$(dirname "$here")/build/statewise}
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
-python3 "$here/make_log.py" "$rows" "$work/log.csv"
-echo "log: $rows rows, $(stat -c %s "$work/log.csv") bytes; machine: $(nproc) cores, load $(cut -d' ' -f1-3 /proc/loadavg)"
+# LOG=FILE reuses a log made earlier by make_log.py with the same ROWS.
+if [ -n "${LOG:-}" ]; then ln -s "$LOG" "$work/log.csv"; else python3 "$here/make_log.py" "$rows" "$work/log.csv"; fi
+echo "log: $rows rows, $(stat -L -c %s "$work/log.csv") bytes; machine: $(nproc) cores, load $(cut -d' ' -f1-3 /proc/loadavg)"
 : > "$work/file"; : > "$work/pipe"; : > "$work/pipes"
 for _ in $(seq "$repeat"); do
   /usr/bin/time -f "%e %M" -a -o "$work/file" "$bin" filter -m "$here/model.json" "$work/log.csv" -o "$work/out-file.csv"
