@@ -609,4 +609,10 @@ const std::string& CsvReader::display_name() const { return impl_->display_name_
 
 std::size_t CsvReader::bytes_read() const { return impl_->base_ + impl_->parse_begin_; }
 
+bool CsvReader::line_buffered() const {
+  const Impl& impl = *impl_;
+  return impl.parse_begin_ < impl.end_ &&
+         std::memchr(impl.buf_.data() + impl.parse_begin_, '\n', impl.end_ - impl.parse_begin_) != nullptr;
+}
+
 }  // namespace statewise

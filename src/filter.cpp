@@ -99,11 +99,15 @@ void KalmanFilter::reset() {
   last_inputs_ = Eigen::VectorXd::Zero(model_.input_count());
 }
 
-void KalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance) {
+void KalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance,
+                             const Eigen::MatrixXd* diffuse) {
   mean_ = mean;
   covariance_ = covariance;
-  diffuse_phase_ = false;
-  diffuse_.setZero();
+  diffuse_phase_ = diffuse != nullptr;
+  if (diffuse)
+    diffuse_ = *diffuse;
+  else
+    diffuse_.setZero();
 }
 
 void KalmanFilter::predict(const Transition& transition, const double* previous_inputs) {

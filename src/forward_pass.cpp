@@ -78,6 +78,28 @@ const Eigen::MatrixXd& ForwardPass::covariance() const {
   return root_ ? root_->covariance() : plain_.covariance();
 }
 
+ForwardPassState ForwardPass::state() const {
+  ForwardPassState state;
+  state.numerics = numerics();
+  state.mean = mean();
+  state.covariance = covariance();
+  if (root_) state.factor = root_->factor();
+  if (const Eigen::MatrixXd* diffuse = diffuse_covariance()) state.diffuse = *diffuse;
+  state.fully_rejected_rows = fully_rejected_rows_;
+  return state;
+}
+
+void ForwardPass::resume(const ForwardPassState& state) {
+  if (state.numerics == Numerics::square_root) {
+    if (!root_) root_ = std::make_unique<SquareRootKalmanFilter>(model_);
+    root_->set_factor(state.mean, state.factor);
+  } else {
+    root_.reset();
+    plain_.set_state(state.mean, state.covariance, state.diffuse.size() > 0 ? &state.diffuse : nullptr);
+  }
+  fully_rejected_rows_ = state.fully_rejected_rows;
+}
+
 void ForwardPass::predict(const Transition& transition, const double* previous_inputs) {
   if (root_)
     root_->predict(transition, previous_inputs);

@@ -65,6 +65,12 @@ void SquareRootKalmanFilter::set_state(const Eigen::VectorXd& mean, const Eigen:
   refresh_covariance();
 }
 
+void SquareRootKalmanFilter::set_factor(const Eigen::VectorXd& mean, const Eigen::MatrixXd& factor) {
+  mean_ = mean;
+  factor_ = factor;
+  refresh_covariance();
+}
+
 void SquareRootKalmanFilter::refresh_covariance() {
   // P = S S', written so that the result is exactly symmetric.
   covariance_.noalias() = factor_ * factor_.transpose();

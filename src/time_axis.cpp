@@ -556,6 +556,27 @@ void Timeline::finish() {
   has_pending_ = false;
 }
 
+TimelinePosition Timeline::position() const {
+  return TimelinePosition{origin_, last_time_, last_text_, next_grid_, last_inputs_};
+}
+
+void Timeline::resume(const TimelinePosition& position, const SourceLocation& where) {
+  started_ = true;
+  last_inputs_ = position.last_inputs;
+  if (!has_time_) return;
+  const ParsedTime parsed = parse_time(position.last_text, where, time_column_);
+  origin_ = position.origin;
+  last_time_ = position.last_time;
+  last_style_ = parsed.style;
+  next_grid_ = position.next_grid;
+  any_pushed_ = true;
+  iso8601_ = parsed.style.iso8601;
+  pushed_time_ = position.last_time;
+  pushed_text_ = position.last_text;
+  last_text_ = position.last_text;
+  pushed_line_ = 0;
+}
+
 Gap Timeline::gap_between(const TimePoint& from, const TimePoint& to) const {
   Gap gap;
   gap.seconds = seconds_between(from, to);
@@ -575,6 +596,7 @@ void Timeline::hand_out(Held& held, TimelineRow& out) {
     out.time = seconds_between(origin_, held.time);
     last_time_ = held.time;
     last_style_ = held.style;
+    last_text_.assign(trim(out.row.time_text));
   }
   last_line_ = out.row.line;
   last_inputs_ = out.row.inputs;

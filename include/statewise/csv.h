@@ -78,6 +78,9 @@ class CsvReader {
   const std::string& display_name() const;
   /// Bytes consumed so far (for progress reporting).
   std::size_t bytes_read() const;
+  /// True when input already read holds the end of another line, so that next() can go on without
+  /// waiting for more input (a streaming writer flushes its output only when this is false).
+  bool line_buffered() const;
 
  private:
   struct Impl;

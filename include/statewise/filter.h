@@ -73,8 +73,11 @@ class KalmanFilter {
 
   /// Returns to the initial prior.
   void reset();
-  /// Replaces the current mean and covariance (to resume from saved state).
-  void set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance);
+  /// Replaces the current mean and covariance (to resume from saved state). `diffuse` (n×n, may be
+  /// null) is the diffuse part P_inf of a filter saved during the exact diffuse phase: given, the
+  /// filter continues that phase; null ends it.
+  void set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance,
+                 const Eigen::MatrixXd* diffuse = nullptr);
 
   /// Moves the state one transition ahead: x = A x + B u, P = A P A' + Q.
   void predict(const Transition& transition, const double* previous_inputs);

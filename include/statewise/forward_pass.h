@@ -80,6 +80,19 @@ struct RejectionLog {
   std::size_t first_reacquired_line = 0;  ///< input line of the first such row (0 = none)
 };
 
+/// What a ForwardPass carries from one row to the next that its output depends on: all it takes to
+/// stop after a row and resume later with the very rows an uninterrupted pass would give. The
+/// statistics of the run (accumulator, consistency tests, stuck runs, rejection log) are not part of
+/// it: a resumed pass reports on its own rows.
+struct ForwardPassState {
+  Numerics numerics = Numerics::plain;  ///< the engine in use (plain may have switched to square_root)
+  Eigen::VectorXd mean;                 ///< n: the mean after the last row
+  Eigen::MatrixXd covariance;           ///< n×n: its covariance (the finite part during the diffuse phase)
+  Eigen::MatrixXd factor;               ///< n×n lower-triangular S with S S' = covariance; square_root only
+  Eigen::MatrixXd diffuse;              ///< n×n diffuse part P_inf while the exact diffuse phase lasts; else empty
+  std::size_t fully_rejected_rows = 0;  ///< rows in a row with every observed value rejected (the gate)
+};
+
 /// True when a covariance has clearly lost positive semidefiniteness: a negative or non-finite
 /// variance, or a pivot of its Cholesky elimination below -sqrt(machine epsilon) times that variance
 /// (pivots within that band are rounding of a semidefinite matrix and count as zero).
@@ -105,6 +118,12 @@ class ForwardPass {
   /// row's prediction and redo the row; only when that fails too is the status returned. On a non-ok
   /// status the row is not added to the statistics.
   StepStatus update(const double* values, std::size_t line);
+
+  /// The state after the last row, to save and resume() from.
+  ForwardPassState state() const;
+  /// Continues from a saved state (of a pass with the same model and options). The numerics may
+  /// differ from the options' (a plain pass that switched to square-root stays switched).
+  void resume(const ForwardPassState& state);
 
   /// Current mean.
   const Eigen::VectorXd& mean() const;

@@ -37,6 +37,9 @@ class SquareRootKalmanFilter {
   /// triangularized, so a covariance that has lost definiteness through rounding (tiny negative
   /// eigenvalues) is accepted, its negative part dropped.
   void set_state(const Eigen::VectorXd& mean, const Eigen::MatrixXd& covariance);
+  /// Replaces the current mean and factor S (n×n lower triangular, as returned by factor()), so that a
+  /// saved filter resumes with the very same numbers.
+  void set_factor(const Eigen::VectorXd& mean, const Eigen::MatrixXd& factor);
 
   /// Time update: x = A x + B u; the factor of A P A' + Q is the triangular factor of [A S, Q^(1/2)].
   void predict(const Transition& transition, const double* previous_inputs);

@@ -116,6 +116,16 @@ struct TimelineRow {
   Gap gap;                 ///< from the previous timeline row; {0, 0} on the first row
 };
 
+/// Where a Timeline stopped: what the rows after the last one handed out depend on (the gap from it,
+/// the --regular grid, the inputs held on inserted rows), to resume a log in a later run.
+struct TimelinePosition {
+  TimePoint origin;                 ///< the first row's time: the --regular grid's anchor
+  TimePoint last_time;              ///< the last log row's time
+  std::string last_text;            ///< that time as the log wrote it (its style for inserted rows)
+  std::int64_t next_grid = 0;       ///< index of the next --regular grid time not yet passed
+  std::vector<double> last_inputs;  ///< the last row's inputs
+};
+
 /// Turns log rows, in file order, into timeline rows. Use:
 /// `for each log row: timeline.push(row); while (timeline.pop(out)) use(out);`
 /// then `timeline.finish(); while (timeline.pop(out)) use(out);`.
@@ -136,6 +146,13 @@ class Timeline {
   void finish();
   /// The next timeline row, if one is ready (swapped into `out`, whose old buffers are reused).
   bool pop(TimelineRow& out);
+
+  /// Where the timeline stands after the rows handed out so far (valid once a row was handed out).
+  TimelinePosition position() const;
+  /// Continues after a position saved by an earlier run, as if its rows had been handed out: the next
+  /// row's gap is measured from `position.last_time`, must come after it, and the --regular grid keeps
+  /// its anchor. Call before the first push(). Raises InputError at `where` when last_text is not a time.
+  void resume(const TimelinePosition& position, const SourceLocation& where);
 
   /// True when the model has a time column.
   bool has_time() const { return has_time_; }
@@ -202,6 +219,7 @@ class Timeline {
   TimePoint origin_;
   TimePoint last_time_;
   TimeStyle last_style_;
+  std::string last_text_;
   std::size_t last_line_ = 0;
   std::vector<double> last_inputs_;
   std::int64_t next_grid_ = 0;  // index of the next grid time not yet passed

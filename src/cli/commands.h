@@ -51,6 +51,11 @@ struct EstimateOptions {
   std::string by;                          // --by COLUMN: one run per group; empty = one run (filter, smooth)
   int threads = 0;                         // --threads N for --by; 0 = all cores
   bool fail_fast = false;                  // --fail-fast: with --by, stop at the first failed group
+  bool quiet = false;                      // --quiet: no progress line, no warnings on stderr
+  std::string state_path;                  // --state FILE (filter); empty = none
+  bool append = false;                     // --append (filter)
+  bool reset = false;                      // --reset (filter, with --state)
+  bool no_wait = false;                    // --no-wait (filter, with --state)
 };
 
 /// Options of `statewise forecast`: a log's options plus what to forecast.

@@ -1,5 +1,6 @@
 // `statewise filter` and `statewise smooth`.
 
+#include <iostream>
 #include <memory>
 
 #include "cli/commands.h"
@@ -8,6 +9,8 @@
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
+#include "cli/progress.h"
+#include "cli/state_file.h"
 #include "statewise/csv.h"
 #include "statewise/diagnostics.h"
 #include "statewise/discretize.h"
@@ -152,27 +155,50 @@ void LeadColumn::apply(std::string& out, std::size_t row_start) const {
 }
 
 RunReport filter_rows(const StateSpaceModel& model, const EstimateOptions& options, const RowSource& rows,
-                      const std::string& file, ForwardPass& filter, TableSink& sink) {
+                      const std::string& file, ForwardPass& filter, TableSink& sink, FilterResume* resume) {
   Timeline timeline(model, timeline_options(options), file);
   const EstimateTableWriter writer(model, EstimateKind::filtered, table_format(options, true));
   TransitionCache transitions(model, kStreamingCacheCapacity);
   SpacingWatch spacing(model, options.regular_step);
   std::vector<double> previous_inputs;
-  bool first = true;
-  read_timeline(rows, file, timeline, options.sort, [&](TimelineRow& row) {
-    if (!first)
-      filter.predict(transitions.transition(row.gap),
-                     previous_inputs.empty() ? nullptr : previous_inputs.data());
-    const StepStatus status = filter.update(row.row.values.data(), row.row.line);
-    if (status != StepStatus::ok) fail_step(status, row_place(file, row));
-    spacing.add(row);
-    sink_row(sink, [&](std::string& out) {
-      writer.append_row(out, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
-                        &filter.record(), filter.rejected(), filter.diffuse_covariance());
-    });
-    previous_inputs = row.row.inputs;
-    first = false;
-  });
+  std::uint64_t rows_before = 0;
+  const SeriesState* saved = resume != nullptr ? resume->saved : nullptr;
+  if (saved != nullptr) {
+    std::string group_key = "groups[";
+    append_json_string(group_key, resume->group);
+    if (saved->rows > 0) timeline.resume(saved->position, {options.state_path, 0, 0, group_key + "].last_time.text"});
+    filter.resume(saved->pass);
+    previous_inputs = saved->position.last_inputs;
+    rows_before = saved->rows;
+  }
+  ResumeSkipper skipper(saved, model);
+  bool first = rows_before == 0;
+  read_timeline(
+      rows, file, timeline, options.sort,
+      [&](TimelineRow& row) {
+        if (!first)
+          filter.predict(transitions.transition(row.gap), previous_inputs.empty() ? nullptr : previous_inputs.data());
+        const StepStatus status = filter.update(row.row.values.data(), row.row.line);
+        if (status != StepStatus::ok) fail_step(status, row_place(file, row));
+        spacing.add(row);
+        sink_row(sink, [&](std::string& out) {
+          writer.append_row(out, row.row.time_text, filter.used_values(), filter.mean(), filter.covariance(),
+                            &filter.record(), filter.rejected(), filter.diffuse_covariance());
+        });
+        previous_inputs = row.row.inputs;
+        first = false;
+      },
+      [&skipper](const ObservationRow& row) { return skipper.skip(row); });
+  if (resume != nullptr) {
+    SeriesState& next = resume->next;
+    next = saved != nullptr ? *saved : SeriesState{};
+    next.has_time = timeline.has_time();
+    next.log_rows = skipper.log_rows();
+    next.rows = rows_before + timeline.rows();
+    if (timeline.rows() > 0) next.position = timeline.position();
+    next.pass = filter.state();
+    resume->skipped = skipper.skipped();
+  }
   RunReport report = start_report("filter", options, model);
   add_timeline_warnings(report, timeline, spacing, options);
   finish_report(report, filter, file);
@@ -287,32 +313,56 @@ int run_filter(const EstimateOptions& options) {
   if (!options.by.empty()) return run_grouped(options, GroupedCommand::filter);
   const StateSpaceModel model = load_model(options.model_path);
   check_estimate_options(model, options);
+  // With --state: lock, read and check the saved state before anything is written.
+  StateSession session(options, model);
   const ForwardPassOptions pass_options = forward_pass_options(options.trust);
   CsvReader reader = CsvReader::open(options.input_path, csv_options(options));
   ObservationStream stream(reader, model);
-  OutputFile output(options.output_path, options.input_path);
+  OutputFile output(options.output_path, options.input_path, options.append);
+  session.prepare_output(output);
 
   std::string buffer, plot_table;  // with --plot, the table is kept for the plot
   auto write_out = [&](std::string& text) {
     if (!options.trust.plot_path.empty()) plot_table += text;
     output.write_buffer(text);
   };
-  // The plot reads the table's header even when the output leaves it out.
+  // The plot reads the table's header even when the output leaves it out (--no-header, or appending).
+  const bool header = options.header && (!options.append || output.length() == 0);
   EstimateTableWriter(model, EstimateKind::filtered, table_format(options, true))
-      .append_header(options.header ? buffer : plot_table);
+      .append_header(header ? buffer : plot_table);
+  ProgressLine progress(options.input_path, options.quiet);
+  ForwardPass filter(model, pass_options);
   TableSink sink{buffer, nullptr, [&](std::string& text) {
-                   if (output.interactive()) {
+                   if (output.interactive() && !reader.line_buffered()) {
+                     // A live stream: the row goes out before the program waits for the next one. Rows
+                     // already in the input buffer (a fast pipe) are written in blocks like a file's.
                      write_out(text);
                      output.flush();
                    } else if (text.size() >= (1u << 16)) {
                      write_out(text);
                    }
+                   progress.update(filter.rows(), reader.bytes_read());
                  }};
-  ForwardPass filter(model, pass_options);
-  const RunReport report = filter_rows(
-      model, options, [&stream](ObservationRow& row) { return stream.next(row); }, reader.display_name(), filter, sink);
+  FilterResume resume;
+  resume.saved = session.resume_point();
+  RunReport report = filter_rows(
+      model, options, [&stream](ObservationRow& row) { return stream.next(row); }, reader.display_name(), filter, sink,
+      session.active() ? &resume : nullptr);
+  progress.finish();
   write_out(buffer);
+  output.flush();
+  test_exit_point("after-output-write");
   output.commit();
+  test_exit_point("after-output-fsync");
+  if (session.active()) {
+    session.save(resume.next, output);
+    if (resume.skipped > 0)
+      session.warn(std::to_string(resume.skipped) + " rows of " + reader.display_name() +
+                   " were skipped: the state file " + options.state_path + " already accounts for them");
+  }
+  for (const std::string& warning : session.warnings())
+    if (!options.quiet) std::cerr << "statewise: warning: " << warning << '\n';
+  report.warnings.insert(report.warnings.begin(), session.warnings().begin(), session.warnings().end());
   write_report_file(options, report);
   if (!options.trust.plot_path.empty()) write_plot_file(plot_table, options, report);
   return kExitSuccess;

@@ -16,6 +16,7 @@
 #include "statewise/model.h"
 #include "statewise/output_table.h"
 #include "statewise/report.h"
+#include "statewise/run_state.h"
 #include "statewise/series.h"
 
 namespace statewise::cli {
@@ -74,12 +75,22 @@ TableFormat table_format(const EstimateOptions& options, bool innovations);
 /// options, --format) against the model before any file is read; raises InputError naming the option.
 void check_estimate_options(const StateSpaceModel& model, const EstimateOptions& options);
 
+/// A filter run that continues a saved one (--state): the log rows the saved state accounts for are
+/// skipped, the timeline and the filter start where it stopped, and what the next state needs is kept.
+struct FilterResume {
+  const SeriesState* saved = nullptr;  ///< the saved point; null = start at the model's prior
+  std::string group;                   ///< the group's name in the state file ("" without --by)
+  SeriesState next;                    ///< after the run: the state to save
+  std::uint64_t skipped = 0;           ///< log rows skipped as already processed
+};
+
 /// Runs the Kalman filter from `filter`'s current state over `rows` (through the time axis of
 /// --sort, --duplicates, --regular), appending a row per timeline row to `sink`, and returns the
-/// report (not written anywhere). `file` names the log in messages. Raises InputError for bad input
-/// and NumericalFailure when the filter breaks down.
+/// report (not written anywhere). `file` names the log in messages. With `resume`, continues the saved
+/// run it names and fills in its next state. Raises InputError for bad input and NumericalFailure when
+/// the filter breaks down.
 RunReport filter_rows(const StateSpaceModel& model, const EstimateOptions& options, const RowSource& rows,
-                      const std::string& file, ForwardPass& filter, TableSink& sink);
+                      const std::string& file, ForwardPass& filter, TableSink& sink, FilterResume* resume = nullptr);
 
 /// Filters `rows` (as filter_rows), then runs the RTS smoother backwards and appends the smoothed
 /// rows to `sink`; with `plot_table`, also the table with innovation columns, for --plot.

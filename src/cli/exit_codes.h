@@ -9,6 +9,7 @@ enum ExitCode : int {
   kExitBadInput = 2,           // bad input or usage: the message names the file, line and column or key
   kExitModelCannotWork = 3,    // `check`: the model cannot work on this data (unobservable/unstable)
   kExitOutputFailure = 4,      // the output could not be written (disk full, permission)
+  kExitBusy = 5,               // `filter --state FILE --no-wait`: another run holds FILE's lock
   kExitSomeGroupsFailed = 6,   // --by: some groups failed (each named on stderr); the others' rows were written
 };
 

@@ -39,18 +39,21 @@ void check_sort_flag(const StateSpaceModel& model, bool sort) {
 }
 
 void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
-                   const std::function<void(TimelineRow&)>& visit) {
+                   const std::function<void(TimelineRow&)>& visit,
+                   const std::function<bool(const ObservationRow&)>& skip) {
   read_timeline([&stream](ObservationRow& row) { return stream.next(row); }, stream.reader().display_name(), timeline,
-                sort, visit);
+                sort, visit, skip);
 }
 
 void read_timeline(const std::function<bool(ObservationRow&)>& next, const std::string& file, Timeline& timeline,
-                   bool sort, const std::function<void(TimelineRow&)>& visit) {
+                   bool sort, const std::function<void(TimelineRow&)>& visit,
+                   const std::function<bool(const ObservationRow&)>& skip) {
   TimelineRow out;
   if (sort) {
     std::vector<ObservationRow> rows;
     ObservationRow row;
-    while (next(row)) rows.push_back(row);
+    while (next(row))
+      if (!skip || !skip(row)) rows.push_back(row);
     sort_rows_by_time(rows, file, timeline.time_column());
     for (const ObservationRow& sorted : rows) {
       timeline.push(sorted);
@@ -59,6 +62,7 @@ void read_timeline(const std::function<bool(ObservationRow&)>& next, const std::
   } else {
     ObservationRow row;
     while (next(row)) {
+      if (skip && skip(row)) continue;
       timeline.push(row);
       while (timeline.pop(out)) visit(out);
     }

@@ -24,12 +24,15 @@ DuplicatePolicy parse_duplicate_policy(const std::string& text);
 void check_sort_flag(const StateSpaceModel& model, bool sort);
 
 /// Feeds every row of `stream` through `timeline` (all rows sorted by time first when `sort`) and
-/// calls `visit` with each timeline row, in order.
+/// calls `visit` with each timeline row, in order. Log rows for which `skip` (when given) returns
+/// true are left out before the timeline sees them.
 void read_timeline(ObservationStream& stream, Timeline& timeline, bool sort,
-                   const std::function<void(TimelineRow&)>& visit);
+                   const std::function<void(TimelineRow&)>& visit,
+                   const std::function<bool(const ObservationRow&)>& skip = {});
 /// The same for rows from `next` (fills a row, false at the end); `file` names the log in messages.
 void read_timeline(const std::function<bool(ObservationRow&)>& next, const std::string& file, Timeline& timeline,
-                   bool sort, const std::function<void(TimelineRow&)>& visit);
+                   bool sort, const std::function<void(TimelineRow&)>& visit,
+                   const std::function<bool(const ObservationRow&)>& skip = {});
 
 /// Where a timeline row came from, for messages: `file:line`, or `file: the row inserted at TIME`.
 std::string row_place(const std::string& file, const TimelineRow& row);

@@ -11,6 +11,7 @@
 #include "cli/commands.h"
 #include "cli/exit_codes.h"
 #include "cli/output_file.h"
+#include "cli/state_file.h"
 #include "statewise/error.h"
 #include "statewise/version.h"
 
@@ -47,6 +48,8 @@ void add_estimate_options(CLI::App& command, EstimateOptions& options) {
                   "Rows with the same time: error, or merge them per channel: first, last or mean")
       ->capture_default_str();
   statewise::cli::add_format_option(command, options.format);
+  command.add_flag("-q,--quiet", options.quiet,
+                   "No progress line on a terminal and no warnings on standard error (the --report keeps them)");
 }
 
 void add_regular_option(CLI::App& command, EstimateOptions& options) {
@@ -101,6 +104,7 @@ int main(int argc, char** argv) {
   add_regular_option(*filter, filter_options);
   add_trust_options(*filter, filter_options.trust, true, false);
   add_grouping_options(*filter, filter_options);
+  add_state_options(*filter, filter_options);
   CLI::App* smooth = app.add_subcommand("smooth", "Estimate every row from the whole log (RTS smoother)");
   add_estimate_options(*smooth, smooth_options);
   add_regular_option(*smooth, smooth_options);
@@ -215,6 +219,8 @@ int main(int argc, char** argv) {
     return report_error(e.message, kExitNumericalFailure);
   } catch (const OutputError& e) {
     return report_error(e.message, kExitOutputFailure);
+  } catch (const BusyError& e) {
+    return report_error(e.message, kExitBusy);
   } catch (const std::bad_alloc&) {
     return report_error("out of memory", kExitNumericalFailure);
   }

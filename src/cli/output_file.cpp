@@ -6,6 +6,8 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "statewise/error.h"
+
 namespace statewise::cli {
 
 namespace {
@@ -26,7 +28,10 @@ std::string base_name_of(const std::string& path) {
 }
 }  // namespace
 
-OutputFile::OutputFile(std::string path, const std::string& input_path) : path_(std::move(path)) {
+OutputFile::OutputFile(std::string path, const std::string& input_path, bool append)
+    : path_(std::move(path)), append_(append) {
+  if (append_ && (path_ == "-" || path_.empty()))
+    raise_input_error({"--append", 0, 0, ""}, "needs -o FILE (a regular file); standard output cannot be appended to");
   if (path_ == "-" || path_.empty()) {
     descriptor_ = STDOUT_FILENO;
     struct stat info {};
@@ -43,6 +48,17 @@ OutputFile::OutputFile(std::string path, const std::string& input_path) : path_(
                                                : stat(input_path.c_str(), &input) == 0;
     if (input_known && input.st_dev == target.st_dev && input.st_ino == target.st_ino)
       throw OutputError{path_ + ": is the input file; refusing to overwrite the log with its own estimates"};
+  }
+  if (append_) {
+    if (exists && !S_ISREG(target.st_mode))
+      throw OutputError{path_ + ": --append needs a regular file, and this is not one"};
+    descriptor_ = open(path_.c_str(), O_WRONLY | O_CREAT | O_CLOEXEC, 0666);
+    if (descriptor_ < 0) throw OutputError{path_ + ": cannot open for appending: " + system_reason()};
+    owns_descriptor_ = true;
+    const off_t end = lseek(descriptor_, 0, SEEK_END);
+    if (end < 0) throw OutputError{path_ + ": cannot open for appending: " + system_reason()};
+    length_ = static_cast<std::uint64_t>(end);
+    return;
   }
   if (exists && !S_ISREG(target.st_mode)) {
     // A device or a pipe: write to it directly, never replace it.
@@ -83,6 +99,7 @@ void OutputFile::write_all(const char* data, std::size_t size) {
     }
     data += written;
     size -= static_cast<std::size_t>(written);
+    length_ += static_cast<std::uint64_t>(written);
   }
 }
 
@@ -107,8 +124,21 @@ void OutputFile::flush() {
   buffer_.clear();
 }
 
+void OutputFile::truncate_to(std::uint64_t length) {
+  flush();
+  if (ftruncate(descriptor_, static_cast<off_t>(length)) != 0 || fsync(descriptor_) != 0 ||
+      lseek(descriptor_, 0, SEEK_END) < 0)
+    throw OutputError{path_ + ": cannot cut back to " + std::to_string(length) + " bytes: " + system_reason()};
+  length_ = length;
+}
+
 void OutputFile::commit() {
   flush();
+  if (append_) {
+    if (fsync(descriptor_) != 0) throw OutputError{path_ + ": cannot write: " + system_reason()};
+    committed_ = true;
+    return;
+  }
   if (temporary_path_.empty()) return;
   if (fsync(descriptor_) != 0) throw OutputError{path_ + ": cannot write: " + system_reason()};
   if (close(descriptor_) != 0) {

@@ -4,6 +4,7 @@
 // existing file intact and no partial file behind. Standard output ("-") and files that are not
 // regular (a device such as /dev/null, a named pipe) are written directly and never replaced.
 
+#include <cstdint>
 #include <string>
 #include <string_view>
 
@@ -19,7 +20,10 @@ class OutputFile {
   /// Opens `path` ("-" = standard output) for writing. `input_path` (may be empty; "-" stands for the
   /// regular file standard input reads, if any) is refused as a target so that a log is never
   /// overwritten by its own estimates.
-  OutputFile(std::string path, const std::string& input_path = "");
+  /// With `append`, a regular file (created when missing) is written in place after its current end
+  /// instead of being replaced; commit() then syncs it. Standard output and other non-regular files
+  /// are refused for appending (OutputError).
+  OutputFile(std::string path, const std::string& input_path = "", bool append = false);
   OutputFile(const OutputFile&) = delete;
   OutputFile& operator=(const OutputFile&) = delete;
   /// Removes the temporary file when commit() was not reached.
@@ -33,6 +37,10 @@ class OutputFile {
   void flush();
   /// Writes out the rest, syncs, and puts the file in place. Only after this does the target change.
   void commit();
+  /// Appending: bytes in the file including what is still buffered.
+  std::uint64_t length() const { return length_ + buffer_.size(); }
+  /// Appending: cuts the file back to `length` bytes (and syncs that) before anything is written.
+  void truncate_to(std::uint64_t length);
   /// True when output goes to a terminal or a pipe (then rows are flushed as they are made).
   bool interactive() const { return interactive_; }
   /// The path as the user gave it.
@@ -47,6 +55,8 @@ class OutputFile {
   bool owns_descriptor_ = false;
   bool committed_ = false;
   bool interactive_ = false;
+  bool append_ = false;
+  std::uint64_t length_ = 0;  // appending: bytes written to the file so far
 };
 
 /// Writes a whole small file (a JSON report, a model) through OutputFile: replaced only on success.
