@@ -186,6 +186,9 @@ StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) 
   w.S.noalias() = w.C.lazyProduct(w.PCt);
   w.S += w.R;
   symmetrize(w.S);
+  // Overflow (values or a transition near the top of the double range) is not a singular S: report
+  // it as what it is, so the message does not send the user looking at R.
+  if (!w.S.allFinite() || !w.v.allFinite()) return StepStatus::not_finite;
   // Cholesky factor of S in the lower triangle of w.factor.
   w.factor = w.S;
   if (!detail::cholesky_in_place(w.factor)) return StepStatus::singular_innovation_covariance;

@@ -155,6 +155,8 @@ StepStatus SquareRootKalmanFilter::update(const double* values, InnovationRecord
     for (Eigen::Index j = i; j < k + n; ++j) post(j, i) = sign * packed(i, j);
   }
   const auto innovation_factor = post.topLeftCorner(k, k);  // S_e^(1/2), lower triangular
+  // Overflow is not a singular S (as in KalmanFilter::update).
+  if (!innovation_factor.allFinite() || !w.v.allFinite()) return StepStatus::not_finite;
   for (int a = 0; a < k; ++a)
     if (!(innovation_factor(a, a) > 0.0) || !std::isfinite(innovation_factor(a, a)))
       return StepStatus::singular_innovation_covariance;

@@ -5,6 +5,7 @@
 #include <doctest/doctest.h>
 #include <sys/wait.h>
 
+#include <cmath>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>

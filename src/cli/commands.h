@@ -22,6 +22,11 @@ struct NumericalFailure {
   std::string message;
 };
 
+/// The failure of a filter step at `place` (`file:line`): what went wrong and what to check, which
+/// differs between a singular innovation covariance (a zero variance) and overflow (values or a
+/// transition too large for double precision).
+NumericalFailure step_failure(StepStatus status, const std::string& place);
+
 /// Options about trusting the output, shared by filter, smooth and diagnose (cli/trust_options.cpp).
 struct TrustOptions {
   std::string reject;              // --reject P; empty = no gate

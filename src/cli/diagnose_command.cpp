@@ -30,9 +30,7 @@ int run_diagnose(const EstimateOptions& options) {
     if (!first) pass.predict(transition, previous.inputs.empty() ? nullptr : previous.inputs.data());
     const StepStatus status = pass.update(row.values.data(), row.line);
     if (status != StepStatus::ok)
-      throw NumericalFailure{
-          reader.display_name() + ":" + std::to_string(row.line) + ": " + describe(status) +
-          "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
+      throw step_failure(status, reader.display_name() + ":" + std::to_string(row.line));
     std::swap(previous, row);
     first = false;
   }

@@ -26,6 +26,14 @@
 
 namespace statewise::cli {
 
+NumericalFailure step_failure(StepStatus status, const std::string& place) {
+  const char* hint = status == StepStatus::not_finite
+                         ? "; the numbers overflowed: check that the values are on a sensible scale and that A "
+                           "does not make the state grow without bound (eigenvalues far above 1 in magnitude)"
+                         : "; check that R (or Q and the initial covariance) are not zero where a channel is observed";
+  return NumericalFailure{place + ": " + describe(status) + hint};
+}
+
 char parse_delimiter(const std::string& text) {
   if (text == "\\t" || text == "tab" || text == "\t") return '\t';
   if (text.size() != 1 || text == "\"" || text == "\n" || text == "\r")
@@ -45,11 +53,7 @@ TimelineOptions timeline_options(const EstimateOptions& options) {
   return timeline;
 }
 
-[[noreturn]] void fail_step(StepStatus status, const std::string& place) {
-  throw NumericalFailure{
-      place + ": " + describe(status) +
-      "; check that R (or Q and the initial covariance) are not zero where a channel is observed"};
-}
+[[noreturn]] void fail_step(StepStatus status, const std::string& place) { throw step_failure(status, place); }
 
 void add_timeline_warnings(RunReport& report, const Timeline& timeline, const SpacingWatch& spacing,
                            const EstimateOptions& options) {

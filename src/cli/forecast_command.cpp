@@ -95,7 +95,7 @@ int run_forecast(const ForecastOptions& options) {
     }
     const StepStatus status = filter.update(row.row.values.data(), record);
     if (status != StepStatus::ok)
-      throw NumericalFailure{row_place(reader.display_name(), row) + ": " + describe(status)};
+      throw step_failure(status, row_place(reader.display_name(), row));
     accumulator.add(record);
     previous_inputs = row.row.inputs;
     first = false;

@@ -1,7 +1,9 @@
 // The statewise command line: parses flags, calls a command, and maps errors to exit codes.
 // All reading and writing of files happens in the commands; the library never prints or exits.
 
+#include <csignal>
 #include <cstdio>
+#include <initializer_list>
 #include <iostream>
 #include <string>
 
@@ -84,6 +86,16 @@ void add_fit_options(CLI::App& command, statewise::cli::FitCommandOptions& optio
       ->allow_extra_args(false);
 }
 
+// Refuses, before anything is written, every output target that is the input log: otherwise a
+// refused --report would come after -o had already been replaced.
+void refuse_input_targets(const std::string& input_path, std::initializer_list<const std::string*> targets) {
+  for (const std::string* target : targets) statewise::cli::refuse_input_as_target(*target, input_path);
+}
+
+void refuse_estimate_targets(const EstimateOptions& options) {
+  refuse_input_targets(options.input_path, {&options.output_path, &options.report_path, &options.trust.plot_path});
+}
+
 int report_error(const std::string& message, int code) {
   std::fflush(stdout);
   std::cerr << "statewise: error: " << message << '\n';
@@ -94,6 +106,9 @@ int report_error(const std::string& message, int code) {
 
 int main(int argc, char** argv) {
   using namespace statewise::cli;
+  // A file-size limit (ulimit -f) would kill the run with SIGXFSZ and no word; ignored, the write
+  // fails with EFBIG instead, and the output's error names the file (exit status 4).
+  std::signal(SIGXFSZ, SIG_IGN);
   CLI::App app{"statewise: state-space estimation (Kalman filter, RTS smoother) for sensor logs", "statewise"};
   app.set_version_flag("--version", std::string("statewise ") + STATEWISE_VERSION);
   app.require_subcommand(1);
@@ -203,6 +218,13 @@ int main(int argc, char** argv) {
   }
 
   try {
+    refuse_estimate_targets(filter_options);
+    refuse_estimate_targets(smooth_options);
+    refuse_estimate_targets(forecast_options);
+    refuse_estimate_targets(diagnose_options);
+    refuse_input_targets(check_options.input_path, {&check_options.report_path});
+    refuse_input_targets(fit_options.input_path, {&fit_options.output_path, &fit_options.report_path});
+    refuse_input_targets(plot_options.input_path, {&plot_options.output_path});
     if (filter->parsed()) return run_filter(filter_options);
     if (smooth->parsed())
       return smooth_options.lag >= 0 ? run_fixed_lag_smooth(smooth_options) : run_smooth(smooth_options);

@@ -3,6 +3,8 @@
 // same folder and renamed over the target only when the command succeeds, so a failed run leaves an
 // existing file intact and no partial file behind. Standard output ("-") and files that are not
 // regular (a device such as /dev/null, a named pipe) are written directly and never replaced.
+// A run ended by SIGINT, SIGTERM, SIGHUP or SIGQUIT removes its temporary files before it dies of
+// the signal.
 
 #include <cstdint>
 #include <string>
@@ -52,12 +54,18 @@ class OutputFile {
   std::string temporary_path_;
   std::string buffer_;
   int descriptor_ = -1;
+  int temporary_slot_ = -1;  // slot of temporary_path_ in the list a signal cleans up
   bool owns_descriptor_ = false;
   bool committed_ = false;
   bool interactive_ = false;
   bool append_ = false;
   std::uint64_t length_ = 0;  // appending: bytes written to the file so far
 };
+
+/// Raises OutputError when `path` (an output target; "" and "-" are never refused) is the file
+/// `input_path` names (see OutputFile). Commands call it for every target before writing any, so
+/// that a refused --report cannot come after -o was already replaced.
+void refuse_input_as_target(const std::string& path, const std::string& input_path);
 
 /// Writes a whole small file (a JSON report, a model) through OutputFile: replaced only on success.
 void write_whole_file(const std::string& path, std::string_view text, const std::string& input_path = "");

@@ -54,6 +54,25 @@ void check_nesting(std::string_view text, const std::string& file_name) {
   }
 }
 
+// Raises InputError for text that is not UTF-8 at all, in the words of the CSV reader: a UTF-16
+// byte-order mark, or NUL bytes (UTF-16 without a mark shows them in every other byte of ASCII text).
+// nlohmann's parser would stop at either with a message about an invalid literal.
+void check_encoding(std::string_view text, const std::string& file_name) {
+  if (text.size() >= 2) {
+    const auto first = static_cast<unsigned char>(text[0]), second = static_cast<unsigned char>(text[1]);
+    if ((first == 0xFF && second == 0xFE) || (first == 0xFE && second == 0xFF))
+      raise_input_error(location_of_byte(text, 0, file_name),
+                        std::string("looks like UTF-16 (byte-order mark ") + (first == 0xFF ? "FF FE" : "FE FF") +
+                            "); save it as UTF-8");
+  }
+  const std::size_t nul = text.find('\0');
+  if (nul == std::string_view::npos) return;
+  const bool every_other = text.size() >= 4 && (text[1] == '\0' || text[0] == '\0') && (text[3] == '\0' || text[2] == '\0');
+  raise_input_error(location_of_byte(text, nul, file_name),
+                    every_other ? "looks like UTF-16 (NUL in every other byte); save it as UTF-8"
+                                : "binary data (NUL byte); expected UTF-8 text");
+}
+
 bool is_scalar_list(const OrderedJson& value) {
   if (!value.is_array()) return false;
   for (const auto& item : value)
@@ -116,6 +135,7 @@ void JsonContext::fail(const std::string& key, const std::string& message) const
 json parse_json_document(std::string_view text, const std::string& file_name) {
   if (text.find_first_not_of(" \t\r\n") == std::string_view::npos)
     raise_input_error({file_name, 0, 0, ""}, "the file is empty; expected a JSON object");
+  check_encoding(text, file_name);
   check_nesting(text, file_name);
   // The containers being parsed, outermost first, to name the key path of a duplicate key or of a
   // number out of range (nlohmann reports neither with a position).
