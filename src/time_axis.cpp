@@ -128,8 +128,13 @@ bool parse_seconds(std::string_view text, ParsedTime& parsed) {
   if (result.ec != std::errc() || result.ptr != last || !std::isfinite(value) ||
       std::abs(value) > kLargestSeconds)
     return false;
-  const double whole = std::floor(value);
-  parsed.time = TimePoint{static_cast<std::int64_t>(whole), value - whole};
+  double whole = std::floor(value);
+  double fraction = value - whole;
+  if (fraction >= 1.0) {  // a tiny negative value: -1e-20 - (-1) rounds to 1
+    fraction = 0.0;
+    whole += 1.0;
+  }
+  parsed.time = TimePoint{static_cast<std::int64_t>(whole), fraction};
   return true;
 }
 
@@ -208,7 +213,9 @@ bool parse_iso8601(std::string_view text, ParsedTime& parsed, std::string& probl
       problem = "expected digits after the decimal point of the seconds";
       return false;
     }
-    fraction = fraction_from_digits(text.substr(begin, i - begin));
+    // Read to the nanosecond, the finest a time is written with: rounding further digits up could
+    // carry 9999-12-31T23:59:59.9999999999Z into a year 10000 that format_time cannot write readably.
+    fraction = fraction_from_digits(text.substr(begin, std::min<std::size_t>(9, i - begin)));
     style.fraction_digits = static_cast<int>(std::min<std::size_t>(9, i - begin));
   }
   int offset_minutes = 0;

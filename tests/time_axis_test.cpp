@@ -118,6 +118,28 @@ TEST_CASE("numeric times read as seconds, split exactly into whole seconds and f
   CHECK(std::abs(gap - 0.1) < 1e-16);
 }
 
+TEST_CASE("a tiny negative number of seconds keeps its fraction below one") {
+  // Found by fuzzing (tests/fuzz/regressions/time/): -1e-20 is floor -1 plus 1 - 1e-20, which rounds
+  // to 1.0 in binary64 (half an ulp of 1 is 1.1e-16), a fraction outside [0, 1). The nearest instant
+  // is 0 s.
+  const TimePoint tiny = time_of("-1e-20");
+  CHECK(tiny.seconds == 0);
+  CHECK(tiny.fraction == 0.0);
+  CHECK(format_time(tiny, TimeStyle{}) == "0");
+}
+
+TEST_CASE("ISO 8601 fractions are read to the nanosecond so that the last second of 9999 writes back") {
+  // Found by fuzzing (tests/fuzz/regressions/time/): the tenth digit rounded the time up into year
+  // 10000, which format_time writes with five year digits that no reader takes as ISO 8601.
+  ParsedTime parsed;
+  std::string problem;
+  REQUIRE(try_parse_time("9999-12-31T23:59:59.9999999999Z", parsed, problem));
+  CHECK(format_time(parsed.time, parsed.style) == "9999-12-31T23:59:59.999999999Z");
+  // 253402300799 s is 9999-12-31T23:59:59Z (days_from_civil, H. Hinnant's date algorithms).
+  CHECK(parsed.time.seconds == 253402300799);
+  CHECK(parsed.time.fraction == 0.999999999);
+}
+
 TEST_CASE("times that cannot be read are errors with the exact words") {
   // Specification: docs/model-format.md, section "Time"; ISO 8601-1:2019 ranges (months 01-12, hours
   // 00-23, minutes and seconds 00-59; leap seconds are refused because POSIX time cannot hold them).
