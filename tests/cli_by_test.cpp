@@ -286,3 +286,61 @@ TEST_CASE("--no-header leaves out the header line and a header-only table gives 
   CHECK(run_statewise(folder, "filter -m model.json --plot full.html one.csv").status == 0);
   CHECK(folder.read("bare.html") == folder.read("full.html"));
 }
+
+namespace {
+
+// The data rows of a table written by `filter --by sensor`, per group in the order they appear (the
+// group is the first field, quoted when it holds a comma). The header lines are left out.
+std::vector<std::pair<std::string, std::vector<std::string>>> rows_per_group(const std::string& table) {
+  std::vector<std::pair<std::string, std::vector<std::string>>> groups;
+  std::istringstream in(table);
+  std::string line;
+  while (std::getline(in, line)) {
+    if (line.rfind("sensor,", 0) == 0) continue;  // a header
+    const std::size_t end = line[0] == '"' ? line.find('"', 1) + 1 : line.find(',');
+    const std::string group = line.substr(0, end);
+    auto it = groups.begin();
+    while (it != groups.end() && it->first != group) ++it;
+    if (it == groups.end()) it = groups.insert(groups.end(), {group, {}});
+    it->second.push_back(line);
+  }
+  std::sort(groups.begin(), groups.end());
+  return groups;
+}
+
+}  // namespace
+
+TEST_CASE("--by with --state: each group resumes where it stopped") {
+  // First principles: one uninterrupted run is the reference. Split by time into three logs fed to
+  // cron-like runs with --state --append, every group's rows must be exactly those of the
+  // uninterrupted run, and a state entry per group carries each one across runs (group b has no row
+  // in the middle part and resumes from its own saved time).
+  ScratchFolder folder;
+  folder.write("model.json", kModel);
+  folder.write("all.csv", kInterleaved);
+  const CommandResult whole = run_statewise(folder, "filter -m model.json --by sensor all.csv");
+  REQUIRE(whole.status == 0);
+
+  const std::string header = "time,sensor,probe\n";
+  folder.write("part1.csv", header + "0,a,10.1\n0,b,20.3\n0,\"c,north\",5.0\n");
+  folder.write("part2.csv", header + "60,a,10.4\n60,\"c,north\",\n");
+  // The third part repeats the rows before it, as a growing log would: they are skipped.
+  folder.write("part3.csv", kInterleaved);
+  for (const char* part : {"part1.csv", "part2.csv", "part3.csv"}) {
+    const CommandResult run = run_statewise(
+        folder, std::string("filter -m model.json --by sensor --state state.json --append -o out.csv ") + part);
+    INFO(part << ": " << run.err);
+    REQUIRE(run.status == 0);
+  }
+  const std::string appended = folder.read("out.csv");
+  CHECK(appended.rfind(whole.out.substr(0, whole.out.find('\n') + 1), 0) == 0);  // one header, first
+  CHECK(rows_per_group(appended) == rows_per_group(whole.out));
+  const std::string state = folder.read("state.json");
+  CHECK(state.find("\"a\"") != std::string::npos);
+  CHECK(state.find("\"c,north\"") != std::string::npos);
+
+  // A state written with --by is refused by a run without it (other settings), naming --by.
+  const CommandResult plain = run_statewise(folder, "filter -m model.json --state state.json --append -o out.csv all.csv");
+  CHECK(plain.status == 2);
+  CHECK(plain.err.find("by=sensor") != std::string::npos);
+}

@@ -6,6 +6,7 @@
 #include <iostream>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <thread>
 #include <unordered_map>
 
@@ -13,6 +14,7 @@
 #include "cli/exit_codes.h"
 #include "cli/log_input.h"
 #include "cli/output_file.h"
+#include "cli/state_file.h"
 #include "statewise/csv.h"
 #include "statewise/error.h"
 #include "statewise/output_table.h"
@@ -92,10 +94,11 @@ struct GroupResult {
   std::string table;          // the group's rows with the group column
   std::string report;         // the run's JSON report (when --report is given)
   std::exception_ptr fatal;   // anything else (out of memory): stops the whole run
+  std::optional<FilterResume> resume;  // with --state: the group's next state and the rows it skipped
 };
 
 GroupResult run_group(const StateSpaceModel& model, const EstimateOptions& options, GroupedCommand command,
-                      const GroupRows& group, const std::string& file) {
+                      const GroupRows& group, const std::string& file, const StateSession& session) {
   GroupResult result;
   try {
     const LeadColumn lead(options.by, group.name(), table_format(options, true));
@@ -109,15 +112,20 @@ GroupResult run_group(const StateSpaceModel& model, const EstimateOptions& optio
     RunReport report;
     if (command == GroupedCommand::filter) {
       ForwardPass filter(model, forward_pass_options(options.trust));
-      report = filter_rows(model, options, rows, file, filter, sink);
+      if (session.active()) {
+        result.resume.emplace();
+        result.resume->saved = session.resume_point(group.name());
+        result.resume->group = group.name();
+      }
+      report = filter_rows(model, options, rows, file, filter, sink, result.resume ? &*result.resume : nullptr);
     } else {
       report = smooth_rows(model, options, rows, file, sink, nullptr);
     }
     if (!options.report_path.empty()) result.report = write_report_json(report);
   } catch (const InputError& e) {
-    result = GroupResult{kExitBadInput, e.what(), {}, {}, {}};
+    result = GroupResult{kExitBadInput, e.what(), {}, {}, {}, {}};
   } catch (const NumericalFailure& e) {
-    result = GroupResult{kExitNumericalFailure, e.message, {}, {}, {}};
+    result = GroupResult{kExitNumericalFailure, e.message, {}, {}, {}, {}};
   } catch (...) {
     result = GroupResult{};
     result.fatal = std::current_exception();
@@ -130,8 +138,13 @@ GroupResult run_group(const StateSpaceModel& model, const EstimateOptions& optio
 class GroupRunner {
  public:
   GroupRunner(const StateSpaceModel& model, const EstimateOptions& options, GroupedCommand command,
-              GroupedTable& table, unsigned threads)
-      : model_(model), options_(options), command_(command), table_(table), results_(table.groups.size()) {
+              GroupedTable& table, const StateSession& session, unsigned threads)
+      : model_(model),
+        options_(options),
+        command_(command),
+        table_(table),
+        session_(session),
+        results_(table.groups.size()) {
     if (threads <= 1) return;
     window_ = 4 * static_cast<std::size_t>(threads);
     for (unsigned i = 0; i < threads; ++i) workers_.emplace_back([this] { work(); });
@@ -152,7 +165,7 @@ class GroupRunner {
   GroupResult take(std::size_t k) {
     GroupResult result;
     if (workers_.empty()) {
-      result = run_group(model_, options_, command_, table_.groups[k], table_.file);
+      result = run_group(model_, options_, command_, table_.groups[k], table_.file, session_);
     } else {
       std::unique_lock<std::mutex> lock(mutex_);
       ready_.wait(lock, [&] { return results_[k] != nullptr; });
@@ -174,7 +187,7 @@ class GroupRunner {
       const std::size_t k = next_++;
       lock.unlock();
       auto result = std::make_unique<GroupResult>(
-          run_group(model_, options_, command_, table_.groups[k], table_.file));
+          run_group(model_, options_, command_, table_.groups[k], table_.file, session_));
       lock.lock();
       results_[k] = std::move(result);
       ready_.notify_all();
@@ -185,6 +198,7 @@ class GroupRunner {
   const EstimateOptions& options_;
   GroupedCommand command_;
   GroupedTable& table_;
+  const StateSession& session_;
   std::vector<std::unique_ptr<GroupResult>> results_;
   std::vector<std::thread> workers_;
   std::mutex mutex_;
@@ -225,9 +239,15 @@ std::string report_head(const EstimateOptions& options, GroupedCommand command) 
          ",\n  \"by\": " + json_string(options.by) + ",\n  \"groups\": [";
 }
 
-std::string report_tail(std::size_t ok, std::size_t failed) {
-  return "\n  ],\n  \"summary\": {\n    \"groups\": " + std::to_string(ok + failed) + ",\n    \"ok\": " +
-         std::to_string(ok) + ",\n    \"failed\": " + std::to_string(failed) + "\n  }\n}\n";
+std::string report_tail(std::size_t ok, std::size_t failed, const std::vector<std::string>& warnings) {
+  std::string out = "\n  ],\n  \"summary\": {\n    \"groups\": " + std::to_string(ok + failed) + ",\n    \"ok\": " +
+                    std::to_string(ok) + ",\n    \"failed\": " + std::to_string(failed) + "\n  }";
+  if (!warnings.empty()) {
+    out += ",\n  \"warnings\": [";
+    for (std::size_t i = 0; i < warnings.size(); ++i) out += (i > 0 ? ",\n    " : "\n    ") + json_string(warnings[i]);
+    out += "\n  ]";
+  }
+  return out + "\n}\n";
 }
 
 void report_group_failure(const std::string& group, const std::string& message) {
@@ -265,8 +285,11 @@ int run_grouped(const EstimateOptions& options, GroupedCommand command) {
   const StateSpaceModel model = load_model(options.model_path);
   check_estimate_options(model, options);
   check_by_column(options, model);
+  // With --state (filter): lock, read and check the saved state before anything is written.
+  StateSession session(options, model);
   GroupedTable table = read_grouped_table(options, model);
-  OutputFile output(options.output_path, options.input_path);
+  OutputFile output(options.output_path, options.input_path, options.append);
+  session.prepare_output(output);
   std::unique_ptr<OutputFile> report;
   if (!options.report_path.empty()) {
     report = std::make_unique<OutputFile>(options.report_path, options.input_path);
@@ -274,7 +297,7 @@ int run_grouped(const EstimateOptions& options, GroupedCommand command) {
   }
 
   std::string buffer;
-  if (options.header) {
+  if (options.header && (!options.append || output.length() == 0)) {
     const TableFormat format = table_format(options, command == GroupedCommand::filter || options.trust.innovations);
     LeadColumn(options.by, "", format).append_header(buffer);
     EstimateTableWriter(model, command == GroupedCommand::filter ? EstimateKind::filtered : EstimateKind::smoothed,
@@ -287,8 +310,9 @@ int run_grouped(const EstimateOptions& options, GroupedCommand command) {
                                                : std::max(1u, std::thread::hardware_concurrency());
   const std::size_t groups = table.groups.size();
   std::size_t ok = 0, failed = 0;
+  std::uint64_t skipped = 0;
   {
-    GroupRunner runner(model, options, command, table,
+    GroupRunner runner(model, options, command, table, session,
                        static_cast<unsigned>(std::min<std::size_t>(threads, std::max<std::size_t>(groups, 1))));
     for (std::size_t k = 0; k < groups; ++k) {
       const std::string name = table.groups[k].name();
@@ -300,15 +324,31 @@ int run_grouped(const EstimateOptions& options, GroupedCommand command) {
         ++failed;
       } else {
         ++ok;
+        if (result.resume) {
+          session.record(name, result.resume->next);
+          skipped += result.resume->skipped;
+        }
         output.write_buffer(result.table);
         if (output.interactive()) output.flush();
       }
       if (report) report->write((k > 0 ? ",\n" : "\n") + report_section(name, result));
     }
   }
+  output.flush();
+  test_exit_point("after-output-write");
   output.commit();
+  test_exit_point("after-output-fsync");
+  if (session.active()) {
+    // A failed group keeps its saved state, so that the next run tries its rows again.
+    session.save(output);
+    if (skipped > 0)
+      session.warn(std::to_string(skipped) + " rows of " + table.file + " were skipped: the state file " +
+                   options.state_path + " already accounts for them");
+  }
+  for (const std::string& warning : session.warnings())
+    if (!options.quiet) std::cerr << "statewise: warning: " << warning << '\n';
   if (report) {
-    report->write(report_tail(ok, failed));
+    report->write(report_tail(ok, failed, session.warnings()));
     report->commit();
   }
   return failed > 0 ? kExitSomeGroupsFailed : kExitSuccess;

@@ -75,7 +75,7 @@ void add_state_options(CLI::App& command, EstimateOptions& options) {
   command
       .add_option("--state", options.state_path,
                   "Resume from this state file and save the new state to it after the run: rows at or before the "
-                  "saved time are skipped (docs/unattended.md)")
+                  "saved time are skipped; with --by, one entry per group (docs/unattended.md)")
       ->type_name("FILE");
   command.add_flag("--append", options.append,
                    "Append the estimates to the -o file instead of replacing it (no second header); with --state "
@@ -97,7 +97,8 @@ void test_exit_point(const char* point) {
 std::string run_settings_text(const EstimateOptions& options) {
   return "numerics=" + options.trust.numerics + " reject=" + options.trust.reject +
          " regular=" + number_setting(options.regular_step) + " duplicates=" + options.duplicates +
-         " digits=" + std::to_string(options.digits) + " format=" + options.format;
+         " digits=" + std::to_string(options.digits) + " format=" + options.format +
+         (options.by.empty() ? "" : " by=" + options.by);
 }
 
 StateSession::StateSession(const EstimateOptions& options, const StateSpaceModel& model)
@@ -148,9 +149,9 @@ StateSession::~StateSession() {
   if (lock_descriptor_ >= 0) close(lock_descriptor_);  // releases the lock
 }
 
-const SeriesState* StateSession::resume_point() const {
+const SeriesState* StateSession::resume_point(const std::string& group) const {
   if (!saved_) return nullptr;
-  const auto found = saved_->groups.find("");
+  const auto found = saved_->groups.find(group);
   return found == saved_->groups.end() ? nullptr : &found->second;
 }
 
@@ -180,7 +181,12 @@ void StateSession::prepare_output(OutputFile& output) {
 
 void StateSession::save(const SeriesState& series, const OutputFile& output) {
   if (!active()) return;
-  next_.groups[""] = series;
+  record("", series);
+  save(output);
+}
+
+void StateSession::save(const OutputFile& output) {
+  if (!active()) return;
   if (append_) next_.output_length = output.length();
   write(next_);
 }

@@ -47,8 +47,9 @@ class StateSession {
 
   /// True with --state.
   bool active() const { return !path_.empty(); }
-  /// The saved series of the plain run (group ""), or null when starting from the model's prior.
-  const SeriesState* resume_point() const;
+  /// The saved series of `group` ("" for a run without --by), or null when it starts from the
+  /// model's prior. Safe to call from several threads.
+  const SeriesState* resume_point(const std::string& group = "") const;
   /// Brings an appended output back to the length the state accounts for (cutting off rows of a run
   /// killed before it saved its state); raises InputError when the output is shorter than that. With
   /// --append and no state yet, saves a first state at the output's current length, so that a first
@@ -56,6 +57,11 @@ class StateSession {
   void prepare_output(OutputFile& output);
   /// Saves `series` as group "" (and the output's length when appending), atomically.
   void save(const SeriesState& series, const OutputFile& output);
+  /// Records `series` as the new state of `group` (--by), to be written by save(output).
+  void record(const std::string& group, const SeriesState& series) { next_.groups[group] = series; }
+  /// Saves every group recorded (groups not recorded keep their saved state) and the output's length
+  /// when appending, atomically.
+  void save(const OutputFile& output);
   /// Warnings about the state (a --reset, rows skipped), for stderr and the report.
   const std::vector<std::string>& warnings() const { return warnings_; }
   /// Adds a warning.
