@@ -119,7 +119,15 @@ void write_report_file(const EstimateOptions& options, const RunReport& report) 
     write_whole_file(options.report_path, write_report_json(report), options.input_path);
 }
 
+void check_plot_format(const EstimateOptions& options) {
+  if (!options.trust.plot_path.empty() && options.format != "csv")
+    raise_input_error({"--plot", 0, 0, ""}, "draws the CSV table and cannot be combined with --format " +
+                                                options.format + "; leave out --format, or run statewise plot on a "
+                                                "CSV table");
+}
+
 void check_estimate_options(const StateSpaceModel& model, const EstimateOptions& options) {
+  check_plot_format(options);
   check_sort_flag(model, options.sort);
   (void)Timeline(model, timeline_options(options), options.input_path);
   (void)forward_pass_options(options.trust);

@@ -71,6 +71,9 @@ struct TableSink {
 /// (c_rejected with --reject; c_innov and c_z when `innovations`).
 TableFormat table_format(const EstimateOptions& options, bool innovations);
 
+/// Raises InputError at --plot when it is combined with a --format other than csv (the page draws a CSV table).
+void check_plot_format(const EstimateOptions& options);
+
 /// Checks the options that do not depend on the log (--sort, --regular, --duplicates, the trust
 /// options, --format) against the model before any file is read; raises InputError naming the option.
 void check_estimate_options(const StateSpaceModel& model, const EstimateOptions& options);

@@ -59,6 +59,7 @@ int run_fixed_lag_smooth(const EstimateOptions& options) {
                       "smooth --lag needs a proper initial covariance for every state (the exact diffuse "
                       "smoother works on the whole log); give the states an initial covariance instead of "
                       "\"diffuse\", or run smooth without --lag");
+  check_plot_format(options);
   check_sort_flag(model, options.sort);
   const auto lag = static_cast<std::size_t>(options.lag);
   Timeline timeline(model, timeline_options(options), options.input_path == "-" ? "<stdin>" : options.input_path);
