@@ -82,6 +82,10 @@ SeriesState parse_series(const JsonContext& context, const json& value, const st
   series.log_rows = parse_count(context, required(context, value, prefix, "log_rows"), prefix + "log_rows");
   series.rows = parse_count(context, required(context, value, prefix, "rows"), prefix + "rows");
   series.has_time = value.contains("last_time");
+  // write_run_state writes no last time for a series with no rows; one given there would not survive
+  // writing and reading, and there is no last row to resume after.
+  if (series.has_time && series.rows == 0)
+    context.fail(prefix + "last_time", "given, but rows is 0 (a series with no rows has no last time)");
   if (series.has_time) {
     const json& last = value["last_time"];
     series.position.last_time = parse_time_point(context, last, prefix + "last_time");

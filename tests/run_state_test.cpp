@@ -144,20 +144,43 @@ TEST_CASE("a timeline resumed after its last row continues the gaps and the grid
   CHECK(resumed == reference);
 }
 
-TEST_CASE("state text names the field that is wrong") {
+namespace {
+
+// The text of a state for kModel with one series, mean (1, 2) and covariance I, with the text
+// `saved` replaced by `edited`.
+std::string edited_state_text(SeriesState series, const std::string& saved, const std::string& edited) {
   const StateSpaceModel model = parse_model(kModel, "model.json");
   RunState state;
   state.model_fingerprint = model_fingerprint(model);
   state.states = {"level", "slope"};
-  SeriesState series;
   series.pass.mean = Eigen::Vector2d(1, 2);
   series.pass.covariance = Eigen::Matrix2d::Identity();
   state.groups[""] = series;
   std::string text = write_run_state(state);
-  const std::string saved_mean = "\"mean\": [1.0, 2.0]";
-  REQUIRE(text.find(saved_mean) != std::string::npos);
-  text.replace(text.find(saved_mean), saved_mean.size(), "\"mean\": [1.0]");
+  REQUIRE(text.find(saved) != std::string::npos);
+  return text.replace(text.find(saved), saved.size(), edited);
+}
+
+}  // namespace
+
+TEST_CASE("state text names the field that is wrong") {
+  const std::string text = edited_state_text(SeriesState{}, "\"mean\": [1.0, 2.0]", "\"mean\": [1.0]");
   CHECK_THROWS_WITH_AS(parse_run_state(text, "s.json"),
                        "s.json: groups[\"\"].mean: expected a list of 2 numbers (one per state), got a list of 1 number",
+                       InputError);
+}
+
+TEST_CASE("state text with a last time but no rows is refused") {
+  // Found by the run_state fuzz target (tests/fuzz/regressions/run_state/
+  // last-time-with-no-rows-round-trip.json): write_run_state leaves last_time out of a series with no
+  // rows, so such a series read back lost it and the state did not survive writing and reading.
+  SeriesState series;
+  series.rows = 1;
+  series.has_time = true;
+  series.position.last_text = "5";
+  series.position.last_time.seconds = 5;
+  const std::string text = edited_state_text(series, "\"rows\": 1", "\"rows\": 0");
+  CHECK_THROWS_WITH_AS(parse_run_state(text, "s.json"),
+                       "s.json: groups[\"\"].last_time: given, but rows is 0 (a series with no rows has no last time)",
                        InputError);
 }

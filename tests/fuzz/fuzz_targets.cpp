@@ -15,7 +15,9 @@
 #include "statewise/estimation_spec.h"
 #include "statewise/filter.h"
 #include "statewise/filter_state.h"
+#include "statewise/forward_pass.h"
 #include "statewise/model.h"
+#include "statewise/run_state.h"
 #include "statewise/series.h"
 #include "statewise/time_axis.h"
 
@@ -270,12 +272,98 @@ void fuzz_filter_state(const std::uint8_t* data, std::size_t size) {
   check(same_state(filter.state(), state), "the resumed filter's state is the parsed state");
 }
 
+namespace {
+
+// The cold-room example's model (examples/cold-room/model.json, same content, so the same
+// fingerprint): two states, two channels, one input, a time column. The seeds in
+// tests/fuzz/corpus/run_state/ were written by `statewise filter --state` with it.
+const StateSpaceModel& run_state_model() {
+  static const StateSpaceModel model = parse_model(
+      R"({"version": 1,
+          "description": "Cold-storage room: air temperature and its warming rate, seen by two probes; compressor duty is a known input. Invented demo.",
+          "states": ["air_temp", "warming_rate"], "observations": ["probe_a", "probe_b"],
+          "inputs": ["compressor"], "time": {"column": "time"},
+          "A": [[1, 1], [0, 0.98]], "B": [[-0.06], [0]], "C": [[1, 0], [1, 0]],
+          "Q": [0.0004, 0.00002], "R": [0.01, 0.04],
+          "initial": {"mean": [-18, 0], "covariance": [4, 0.01]}})",
+      "fuzz-model.json");
+  return model;
+}
+
+// What run_settings_text (src/cli/state_file.cpp) writes for `statewise filter --state` with no
+// other option.
+constexpr const char* kRunStateSettings = "numerics=plain reject= regular=0 duplicates=error digits=0 format=csv";
+
+bool same_time(const TimePoint& a, const TimePoint& b) { return a.seconds == b.seconds && a.fraction == b.fraction; }
+
+bool same_series(const SeriesState& a, const SeriesState& b) {
+  const ForwardPassState& p = a.pass;
+  const ForwardPassState& q = b.pass;
+  return a.log_rows == b.log_rows && a.rows == b.rows && a.has_time == b.has_time &&
+         same_time(a.position.origin, b.position.origin) && same_time(a.position.last_time, b.position.last_time) &&
+         a.position.last_text == b.position.last_text && a.position.next_grid == b.position.next_grid &&
+         a.position.last_inputs == b.position.last_inputs && p.numerics == q.numerics && same_matrix(p.mean, q.mean) &&
+         same_matrix(p.covariance, q.covariance) && same_matrix(p.factor, q.factor) &&
+         same_matrix(p.diffuse, q.diffuse) && p.fully_rejected_rows == q.fully_rejected_rows;
+}
+
+bool same_run_state(const RunState& a, const RunState& b) {
+  if (a.model_fingerprint != b.model_fingerprint || a.states != b.states || a.settings != b.settings ||
+      a.output_length != b.output_length || a.groups.size() != b.groups.size())
+    return false;
+  for (auto i = a.groups.begin(), j = b.groups.begin(); i != a.groups.end(); ++i, ++j)
+    if (i->first != j->first || !same_series(i->second, j->second)) return false;
+  return true;
+}
+
+}  // namespace
+
+void fuzz_run_state(const std::uint8_t* data, std::size_t size) {
+  RunState state;
+  try {
+    state = parse_run_state(as_text(data, size), "fuzz-state.json");
+  } catch (const InputError&) {
+    return;
+  }
+  const std::string written = write_run_state(state);
+  try {
+    check(same_run_state(parse_run_state(written, "written.json"), state), "parse_run_state(write_run_state(s)) is s");
+  } catch (const InputError& e) {
+    check(false, std::string("write_run_state's text parses: ") + e.what());
+  }
+  check(write_run_state(state) == written, "write_run_state writes the same state the same way");
+
+  const StateSpaceModel& model = run_state_model();
+  try {
+    check_run_state(state, model, "fuzz-model.json", kRunStateSettings, "fuzz-state.json");
+  } catch (const InputError&) {
+    return;
+  }
+  // Accepted for the model: what the command does next with each group (src/cli/state_file.cpp).
+  check(state.states == model.state_names, "an accepted state has the model's states");
+  for (const auto& [name, series] : state.groups) {
+    check(series.pass.mean.size() == static_cast<Eigen::Index>(model.state_count()), "an accepted mean has one value per state");
+    if (series.rows == 0) continue;
+    check(series.position.last_inputs.size() == static_cast<std::size_t>(model.input_count()),
+          "an accepted group has one last input per input");
+    check(series.has_time, "an accepted group of a model with a time column has a last time");
+    try {
+      Timeline timeline(model, TimelineOptions{}, "fuzz.csv");
+      timeline.resume(series.position, {"fuzz-state.json", 0, 0, ""});
+    } catch (const InputError&) {
+    }
+    ForwardPass pass(model, ForwardPassOptions{});
+    pass.resume(series.pass);
+  }
+}
+
 const std::vector<FuzzTarget>& fuzz_targets() {
   static const std::vector<FuzzTarget> targets = {
       {"csv_reader", fuzz_csv_reader},
       {"model_file", fuzz_model_file},
       {"time", fuzz_time},
       {"filter_state", fuzz_filter_state},
+      {"run_state", fuzz_run_state},
   };
   return targets;
 }

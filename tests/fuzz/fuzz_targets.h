@@ -42,6 +42,12 @@ void fuzz_time(const std::uint8_t* data, std::size_t size);
 /// validate_filter_state and survives write_filter_state and parse_filter_state bit for bit.
 void fuzz_filter_state(const std::uint8_t* data, std::size_t size);
 
+/// parse_run_state; an accepted state survives write_run_state and parse_run_state bit for bit (and
+/// is written the same way again). Against a small fixed model (the cold-room example's) and the
+/// settings of a plain `statewise filter --state` run, check_run_state either raises InputError or
+/// passes a state whose groups fit the model, from which the timeline and the filter resume.
+void fuzz_run_state(const std::uint8_t* data, std::size_t size);
+
 /// A fuzz target: its name (the corpus folder tests/fuzz/corpus/<name>/) and entry function.
 struct FuzzTarget {
   const char* name;                                    ///< e.g. "csv_reader"
