@@ -4,6 +4,7 @@
 #include <numbers>
 #include <string>
 
+#include "detail/observed_channels.h"
 #include "detail/small_cholesky.h"
 #include "statewise/diffuse.h"
 #include "statewise/error.h"
@@ -161,26 +162,12 @@ StepStatus KalmanFilter::diffuse_update(const double* values, InnovationRecord& 
 
 StepStatus KalmanFilter::update(const double* values, InnovationRecord& record) {
   if (diffuse_phase_) return diffuse_update(values, record);
-  const int m = static_cast<int>(model_.C.rows());
-  int k = 0;
-  for (int c = 0; c < m; ++c) {
-    record.innovation(c) = kNaN;
-    record.innovation_sd(c) = kNaN;
-    if (!std::isnan(values[c])) observed_index_[static_cast<std::size_t>(k++)] = c;
-  }
-  record.observed = k;
-  record.nis = kNaN;
-  record.log_likelihood = 0.0;
+  const int k = detail::begin_measurement_update(values, model_.C.rows(), record, observed_index_);
   if (k == 0) return all_finite(covariance_) && mean_.allFinite() ? StepStatus::ok : StepStatus::not_finite;
 
   Workspace& w = workspaces_[static_cast<std::size_t>(k)];
   // Rows of C and the block of R for the observed channels; v = y_o - C_o x.
-  for (int a = 0; a < k; ++a) {
-    const int ca = observed_index_[static_cast<std::size_t>(a)];
-    w.C.row(a) = model_.C.row(ca);
-    for (int b = 0; b < k; ++b) w.R(a, b) = model_.R(ca, observed_index_[static_cast<std::size_t>(b)]);
-    w.v(a) = values[ca] - model_.C.row(ca).dot(mean_);
-  }
+  detail::gather_observed_block(model_.C, model_.R, mean_, values, observed_index_, k, w);
   // S = C P C' + R
   w.PCt.noalias() = covariance_.lazyProduct(w.C.transpose());
   w.S.noalias() = w.C.lazyProduct(w.PCt);

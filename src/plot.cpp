@@ -635,7 +635,9 @@ std::string histogram_panel(const ChannelData& data, const std::string& name) {
   }
   // The normal curve's peak is n * bin width * phi(0).
   double top = static_cast<double>(accepted_total) * kHistogramBin * normal_density(0.0);
-  for (int b = 0; b < kBins; ++b) top = std::max(top, static_cast<double>(accepted[b] + rejected[b]));
+  for (std::size_t b = 0; b < accepted.size(); ++b) {
+    top = std::max(top, static_cast<double>(accepted[b] + rejected[b]));
+  }
   if (!(top > 0.0)) top = 1.0;
   top *= 1.08;
   const double plot_width = kSmallWidth - kSmallLeft - kSmallRight;

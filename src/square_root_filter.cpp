@@ -3,13 +3,13 @@
 #include <Eigen/Cholesky>
 #include <Eigen/Eigenvalues>
 #include <cmath>
-#include <limits>
 #include <numbers>
+
+#include "detail/observed_channels.h"
 
 namespace statewise {
 
 namespace {
-constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
 // The lower-triangular L with L L' = M' M, from the Householder QR of the tall or square `pre_transposed`
 // (rows >= cols): M = Q R gives M' M = R' R, so L = R' restricted to the first `size` rows. Rows of R
@@ -104,26 +104,13 @@ void SquareRootKalmanFilter::predict(const Transition& transition, const double*
 }
 
 StepStatus SquareRootKalmanFilter::update(const double* values, InnovationRecord& record) {
-  const int m = static_cast<int>(model_.C.rows());
   const Eigen::Index n = factor_.rows();
-  int k = 0;
-  for (int c = 0; c < m; ++c) {
-    record.innovation(c) = kNaN;
-    record.innovation_sd(c) = kNaN;
-    if (!std::isnan(values[c])) observed_index_[static_cast<std::size_t>(k++)] = c;
-  }
-  record.observed = k;
-  record.nis = kNaN;
-  record.log_likelihood = 0.0;
+  const int k = detail::begin_measurement_update(values, model_.C.rows(), record, observed_index_);
   if (k == 0) return mean_.allFinite() && factor_.allFinite() ? StepStatus::ok : StepStatus::not_finite;
 
   Workspace& w = workspaces_[static_cast<std::size_t>(k)];
-  for (int a = 0; a < k; ++a) {
-    const int ca = observed_index_[static_cast<std::size_t>(a)];
-    w.C.row(a) = model_.C.row(ca);
-    for (int b = 0; b < k; ++b) w.R(a, b) = model_.R(ca, observed_index_[static_cast<std::size_t>(b)]);
-    w.v(a) = values[ca] - model_.C.row(ca).dot(mean_);
-  }
+  // Rows of C and the block of R for the observed channels; v = y_o - C_o x.
+  detail::gather_observed_block(model_.C, model_.R, mean_, values, observed_index_, k, w);
   // A factor of the observed block of R: Cholesky when it is positive definite (the usual case), else
   // the eigen factor (a channel with zero noise).
   const Eigen::LLT<Eigen::MatrixXd> llt(w.R);

@@ -3,40 +3,17 @@
 
 #include <doctest/doctest.h>
 
-#include <sstream>
 #include <string>
 #include <vector>
 
+#include "markdown_blocks.h"
 #include "run_command.h"
 
+using statewise::test::fenced_blocks;
 using statewise::test::read_text_file;
 
-namespace {
-
-// The contents of the ```cpp fences of a markdown text.
-std::vector<std::string> cpp_blocks(const std::string& markdown) {
-  std::vector<std::string> blocks;
-  std::istringstream lines(markdown);
-  std::string line, block;
-  bool inside = false;
-  while (std::getline(lines, line)) {
-    if (!inside && line == "```cpp") {
-      inside = true;
-      block.clear();
-    } else if (inside && line == "```") {
-      inside = false;
-      blocks.push_back(block);
-    } else if (inside) {
-      block += line + "\n";
-    }
-  }
-  return blocks;
-}
-
-}  // namespace
-
 TEST_CASE("library docs: the listings in docs/library.md are examples/embed's sources, verbatim") {
-  const std::vector<std::string> blocks = cpp_blocks(read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/docs/library.md"));
+  const std::vector<std::string> blocks = fenced_blocks(read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/docs/library.md"), "cpp");
   REQUIRE(blocks.size() == 2);
   CHECK(blocks[0] == read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/examples/embed/logger.cpp"));
   CHECK(blocks[1] == read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/examples/embed/batch.cpp"));

@@ -3,47 +3,28 @@
 
 #include <doctest/doctest.h>
 
-#include <fstream>
-#include <sstream>
+#include <cstddef>
 #include <string>
 #include <vector>
 
-namespace {
-std::string read_file(const std::string& path) {
-  std::ifstream file(path);
-  std::ostringstream text;
-  text << file.rdbuf();
-  return text.str();
-}
+#include "markdown_blocks.h"
+#include "run_command.h"
 
-// The lines inside ```sh fences, in order.
-std::vector<std::string> shell_blocks(const std::string& markdown) {
-  std::vector<std::string> blocks;
-  std::istringstream lines(markdown);
-  std::string line, block;
-  bool inside = false;
-  while (std::getline(lines, line)) {
-    if (!inside && line == "```sh") {
-      inside = true;
-      block.clear();
-    } else if (inside && line == "```") {
-      inside = false;
-      blocks.push_back(block);
-    } else if (inside) {
-      block += line;
-    }
-  }
-  return blocks;
-}
-}  // namespace
+using statewise::test::fenced_blocks;
+using statewise::test::read_text_file;
 
 TEST_CASE("the README's two set-up commands come first and CI runs the test command verbatim") {
-  const std::string readme = read_file(std::string(STATEWISE_SOURCE_DIR) + "/README.md");
-  const std::vector<std::string> blocks = shell_blocks(readme);
+  const std::string readme = read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/README.md");
+  std::vector<std::string> blocks = fenced_blocks(readme, "sh");
   REQUIRE(blocks.size() >= 2);
+  // Each set-up command is one line (so that it can be pasted whole); drop its newline.
+  for (std::size_t i = 0; i < 2; ++i) {
+    CHECK(blocks[i].find('\n') == blocks[i].size() - 1);
+    blocks[i].pop_back();
+  }
   CHECK(blocks[0].find("statewise smooth") != std::string::npos);
   CHECK(blocks[1].find("ctest") != std::string::npos);
-  const std::string ci = read_file(std::string(STATEWISE_SOURCE_DIR) + "/.ci/run");
+  const std::string ci = read_text_file(std::string(STATEWISE_SOURCE_DIR) + "/.ci/run");
   CHECK_MESSAGE(ci.find("\n" + blocks[1] + "\n") != std::string::npos,
                 ".ci/run must contain the README's test command as one line: " << blocks[1]);
 }
