@@ -420,6 +420,13 @@ ModelTemplate parse_model_template(std::string_view json_text, const std::string
     context.fail("states",
                  "missing; with A and Q marked \"estimate\" as a whole, list the states so that the "
                  "model's size is known");
+  // Markers are sized by n and m, so a model without states or channels is refused here, with the
+  // messages parse_model would give afterwards.
+  if (!root.contains("observations"))
+    context.fail("observations", "missing; expected the list of measured CSV columns");
+  if (m == 0) context.fail("observations", "expected a list of at least one observed channel");
+  if (!root.contains("A")) context.fail("A", "missing; expected the states × states transition matrix");
+  if (n == 0) context.fail(root.contains("states") ? "states" : "A", "the model has no states; expected at least one");
   TemplateBuilder builder(context, result, component_parameters);
   const std::pair<const char*, ModelMatrix> matrices[] = {{"A", ModelMatrix::A},
                                                           {"B", ModelMatrix::B},

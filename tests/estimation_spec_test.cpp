@@ -133,6 +133,20 @@ TEST_CASE("marker errors name the key") {
         "one or the other");
 }
 
+// Found by the model_file fuzz target (docs/hardening.md, finding 4): without A and states, a
+// whole-matrix scalar marker on Q was sized by zero states and read past the end of its starts.
+TEST_CASE("a template without states or channels is refused before its markers are sized") {
+  CHECK(template_error(R"({"observations": ["a", "b"], "Ax": [[1, 0], [0, 1]], "C": [[1, 0], [0, 1]],
+    "Q": {"estimate": "scalar", "start": 0.5}, "R": {"estimate": "diagonal"}})") ==
+        "model.json: A: missing; expected the states × states transition matrix");
+  CHECK(template_error(R"({"states": [], "observations": ["y"], "A": [], "C": 1, "Q": {"estimate": "scalar"},
+    "R": 1})") == "model.json: states: the model has no states; expected at least one");
+  CHECK(template_error(R"({"A": 1, "C": 1, "Q": 1, "R": {"estimate": "scalar"}})") ==
+        "model.json: observations: missing; expected the list of measured CSV columns");
+  CHECK(template_error(R"({"observations": [], "A": 1, "C": 1, "Q": 1, "R": {"estimate": "scalar"}})") ==
+        "model.json: observations: expected a list of at least one observed channel");
+}
+
 TEST_CASE("EM availability: a covariance estimated alone has no closed-form update") {
   const ModelTemplate t =
       parse_model_template(R"({"observations": ["a", "b"], "A": 1, "C": [[1], [1]], "Q": 1,
