@@ -1,5 +1,6 @@
 #include "cli/cli_definition.h"
 
+#include <charconv>
 #include <iostream>
 #include <memory>
 #include <sstream>
@@ -203,6 +204,22 @@ CLI::Validator one_of(std::vector<std::string> names) {
         return "expected one of " + join(names, ", ", " or ") + ", got \"" + value + "\"" + did_you_mean(value, names);
       },
       set, "one of");
+}
+
+CLI::Validator whole_number(long long minimum) {
+  return CLI::Validator(
+      [minimum](std::string& value) -> std::string {
+        long long number = 0;
+        const char* end = value.data() + value.size();
+        const auto [stop, error] = std::from_chars(value.data(), end, number);
+        if (error == std::errc::result_out_of_range)
+          return "expected a whole number, got " + value + ", which is far too large";
+        if (error != std::errc() || stop != end) return "expected a whole number, got \"" + value + "\"";
+        if (number < minimum)
+          return "expected a whole number of at least " + std::to_string(minimum) + ", got " + value;
+        return {};
+      },
+      "");
 }
 
 void add_format_option(CLI::App& command, std::string& format) {

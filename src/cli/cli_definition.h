@@ -17,6 +17,11 @@ namespace statewise::cli {
 /// value gets `expected one of a, b, c, got "x"; did you mean "y"?`.
 CLI::Validator one_of(std::vector<std::string> names);
 
+/// A check that the value is a whole number of at least `minimum` that a 64-bit integer holds. CLI11
+/// would otherwise turn a longer number into the largest one and report that instead of what was
+/// typed. No description: the help is unchanged.
+CLI::Validator whole_number(long long minimum);
+
 /// Adds `--format csv|tsv|jsonl` (default csv) to a command that writes rows through TableLayout.
 void add_format_option(CLI::App& command, std::string& format);
 

@@ -129,7 +129,7 @@ int main(int argc, char** argv) {
                    "Fixed-lag smoothing: stream the log and write each row as soon as K more rows have "
                    "arrived, estimated from the rows up to then; 0 = the filter's estimates")
       ->type_name("K")
-      ->check(CLI::NonNegativeNumber)
+      ->check(whole_number(0))
       ->default_str("off");  // not -1, the value that stands for "not given"
   add_grouping_options(*smooth, smooth_options);
 
@@ -138,7 +138,8 @@ int main(int argc, char** argv) {
       "forecast", "Filter a log, then predict rows past its end with intervals for new measurements");
   add_estimate_options(*forecast, forecast_options);
   CLI::Option* horizon =
-      forecast->add_option("--horizon", forecast_options.horizon, "Number of future rows to predict");
+      forecast->add_option("--horizon", forecast_options.horizon, "Number of future rows to predict")
+          ->check(whole_number(1));
   forecast->add_option("--until", forecast_options.until, "Predict up to this time (in the log's time form)")
       ->excludes(horizon);
   forecast->add_option("--step", forecast_options.step,
