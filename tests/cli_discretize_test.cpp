@@ -5,28 +5,19 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
+#include "cli_models.h"
 #include "cli_run.h"
 
 using statewise::testing::CommandResult;
+using statewise::testing::kFallingBodyModel;
 using statewise::testing::run_statewise;
 using statewise::testing::ScratchFolder;
-
-namespace {
-
-const char* kFallingBody = R"({
-  "states": ["position", "velocity"], "observations": ["height"], "inputs": ["g"],
-  "time": {"column": "time"}, "domain": "continuous",
-  "A": [[0, 1], [0, 0]], "B": [[0], [-1]], "C": [[1, 0]], "Q": [[0, 0], [0, 0.3]], "R": 0.25,
-  "initial": {"mean": [100, 0], "covariance": [4, 1]}
-})";
-
-}  // namespace
 
 TEST_CASE("discretize prints the discrete model file with the step") {
   // Elementary kinematics and Bar-Shalom, Li, Kirubarajan 2001, section 6.2.2: over T = 0.5 s,
   // A = [[1, T], [0, 1]], B = [-T^2/2, -T], Q = q [[T^3/3, T^2/2], [T^2/2, T]] with q = 0.3.
   ScratchFolder folder;
-  folder.write("model.json", kFallingBody);
+  folder.write("model.json", kFallingBodyModel);
   const CommandResult result = run_statewise(folder, "discretize -m model.json --dt 0.5");
   REQUIRE(result.status == 0);
   const nlohmann::json model = nlohmann::json::parse(result.out);
@@ -44,7 +35,7 @@ TEST_CASE("the discretized model smooths a regular log exactly as the continuous
   // First principles: the discretization is exact, so on rows 0.5 s apart the discrete model with
   // step 0.5 and the continuous model define the same joint distribution.
   ScratchFolder folder;
-  folder.write("model.json", kFallingBody);
+  folder.write("model.json", kFallingBodyModel);
   REQUIRE(run_statewise(folder, "discretize -m model.json --dt 0.5 -o discrete.json").status == 0);
   folder.write("log.csv",
                "time,height,g\n0,100.1,9.81\n0.5,98.9,9.81\n1,95.2,9.81\n1.5,,9.81\n2,80.3,9.81\n");
@@ -64,7 +55,7 @@ TEST_CASE("discretize refuses what it cannot do, with exit status 2") {
       stepless.err ==
       "statewise: error: --dt: the model is already discrete and has no \"step\" to count 1 s in; expected a "
       "continuous model or a discrete one with a step\n");
-  folder.write("model.json", kFallingBody);
+  folder.write("model.json", kFallingBodyModel);
   CHECK(run_statewise(folder, "discretize -m model.json --dt -2").err ==
         "statewise: error: --dt: expected a positive number of seconds, got -2\n");
   CHECK(run_statewise(folder, "discretize -m model.json").status == 2);

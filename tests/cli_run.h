@@ -57,16 +57,24 @@ struct CommandResult {
   std::string err;  // standard error
 };
 
-// Runs `statewise ARGUMENTS` (a shell word list; quote as needed) inside `folder`.
-inline CommandResult run_statewise(const ScratchFolder& folder, const std::string& arguments) {
-  const std::string command = "cd '" + folder.path("") + "' && '" STATEWISE_BINARY "' " + arguments +
-                              " > .stdout 2> .stderr < /dev/null";
+// Runs `statewise ARGUMENTS` (a shell word list; quote as needed) inside `folder`, with
+// `environment` (e.g. "X=1 ") before it and standard input from `input` (a name in the folder, or
+// /dev/null).
+inline CommandResult run_statewise_with(const ScratchFolder& folder, const std::string& environment,
+                                        const std::string& arguments, const std::string& input = "/dev/null") {
+  const std::string command = "cd '" + folder.path("") + "' && " + environment + "'" STATEWISE_BINARY "' " +
+                              arguments + " > .stdout 2> .stderr < " + input;
   const int raw = std::system(command.c_str());
   CommandResult result;
   result.status = WIFEXITED(raw) ? WEXITSTATUS(raw) : -1;
   result.out = folder.read(".stdout");
   result.err = folder.read(".stderr");
   return result;
+}
+
+// Runs `statewise ARGUMENTS` (a shell word list; quote as needed) inside `folder`.
+inline CommandResult run_statewise(const ScratchFolder& folder, const std::string& arguments) {
+  return run_statewise_with(folder, "", arguments);
 }
 
 // A CSV table as statewise writes it (no quoted fields in these tests).

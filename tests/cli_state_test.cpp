@@ -8,7 +8,6 @@
 #include <fcntl.h>
 #include <signal.h>
 #include <sys/file.h>
-#include <sys/wait.h>
 #include <unistd.h>
 
 #include <chrono>
@@ -27,6 +26,7 @@ namespace {
 
 using statewise::testing::CommandResult;
 using statewise::testing::ScratchFolder;
+using statewise::testing::run_statewise_with;
 
 const std::string kColdRoom = STATEWISE_SOURCE_DIR "/examples/cold-room";
 
@@ -50,20 +50,6 @@ std::string rows_text(const std::vector<std::string>& lines, std::size_t begin, 
   std::string text = lines[0] + "\n";
   for (std::size_t i = begin; i < end; ++i) text += lines[i + 1] + "\n";
   return text;
-}
-
-// Runs `statewise ARGUMENTS` in `folder` with `environment` (e.g. "X=1 ") before it and standard
-// input from `input` (a name in the folder, or /dev/null).
-CommandResult run_with(const ScratchFolder& folder, const std::string& environment, const std::string& arguments,
-                       const std::string& input = "/dev/null") {
-  const std::string command = "cd '" + folder.path("") + "' && " + environment + "'" STATEWISE_BINARY "' " +
-                              arguments + " > .stdout 2> .stderr < " + input;
-  const int raw = std::system(command.c_str());
-  CommandResult result;
-  result.status = WIFEXITED(raw) ? WEXITSTATUS(raw) : -1;
-  result.out = folder.read(".stdout");
-  result.err = folder.read(".stderr");
-  return result;
 }
 
 // One way of running the filter: the model file's text, the log's lines and extra flags.
@@ -141,7 +127,7 @@ std::string run_in_parts(const ScratchFolder& folder, const Setup& setup, const 
     const std::size_t end = k < splits.size() ? splits[k] : rows;
     folder.write("part.csv", rows_text(setup.lines, whole_log ? 0 : begin, end));
     const CommandResult run =
-        run_with(folder, "", "filter -m model.json --state state.json --append -o out.csv " + setup.flags +
+        run_statewise_with(folder, "", "filter -m model.json --state state.json --append -o out.csv " + setup.flags +
                                  (through_stdin ? " -" : " part.csv"),
                  through_stdin ? "part.csv" : "/dev/null");
     REQUIRE_MESSAGE(run.status == 0, setup.name << ": part " << k << ": " << run.err);
@@ -153,7 +139,7 @@ std::string run_in_parts(const ScratchFolder& folder, const Setup& setup, const 
 std::string run_whole(const ScratchFolder& folder, const Setup& setup) {
   folder.write("model.json", setup.model);
   folder.write("whole.csv", rows_text(setup.lines, 0, setup.lines.size() - 1));
-  const CommandResult run = run_with(folder, "", "filter -m model.json whole.csv -o whole-out.csv " + setup.flags);
+  const CommandResult run = run_statewise_with(folder, "", "filter -m model.json whole.csv -o whole-out.csv " + setup.flags);
   REQUIRE_MESSAGE(run.status == 0, run.err);
   return folder.read("whole-out.csv");
 }
@@ -188,9 +174,9 @@ TEST_CASE("filter --state without --append writes each run's new rows") {
   const Setup setup = setups()[0];
   const std::vector<std::string> whole = lines_of(run_whole(folder, setup));
   folder.write("part.csv", rows_text(setup.lines, 0, 150));
-  REQUIRE(run_with(folder, "", "filter -m model.json --state state.json part.csv -o a.csv").status == 0);
+  REQUIRE(run_statewise_with(folder, "", "filter -m model.json --state state.json part.csv -o a.csv").status == 0);
   folder.write("part.csv", rows_text(setup.lines, 100, 400));  // 50 rows already seen
-  const CommandResult run = run_with(folder, "", "filter -m model.json --state state.json part.csv -o b.csv");
+  const CommandResult run = run_statewise_with(folder, "", "filter -m model.json --state state.json part.csv -o b.csv");
   REQUIRE(run.status == 0);
   CHECK(run.err ==
         "statewise: warning: 50 rows of part.csv were skipped: the state file state.json already accounts for them\n");
@@ -203,7 +189,7 @@ TEST_CASE("filter --state without --append writes each run's new rows") {
   for (std::size_t i = 1; i < b.size(); ++i) CHECK(b[i] == whole[150 + i]);
   // --quiet keeps the warning off standard error.
   folder.write("part.csv", rows_text(setup.lines, 0, 400));
-  const CommandResult quiet = run_with(folder, "", "filter -m model.json --state state.json part.csv -o c.csv -q");
+  const CommandResult quiet = run_statewise_with(folder, "", "filter -m model.json --state state.json part.csv -o c.csv -q");
   CHECK(quiet.status == 0);
   CHECK(quiet.err.empty());
   CHECK(lines_of(folder.read("c.csv")).size() == 1);  // every row already seen: the header alone
@@ -226,10 +212,10 @@ TEST_CASE("a run stopped at any step of saving is undone or completed by the nex
             "filter -m model.json --state state.json --append -o out.csv part.csv " + setup.flags;
         if (k == stopped_part) {
           // Test-only hook (src/cli/state_file.h): ends the process with _exit(137) at `point`.
-          const CommandResult stopped = run_with(folder, std::string("STATEWISE_TEST_EXIT_AT=") + point + " ", command);
+          const CommandResult stopped = run_statewise_with(folder, std::string("STATEWISE_TEST_EXIT_AT=") + point + " ", command);
           REQUIRE(stopped.status == 137);
         }
-        const CommandResult run = run_with(folder, "", command);
+        const CommandResult run = run_statewise_with(folder, "", command);
         REQUIRE_MESSAGE(run.status == 0, run.err);
       }
       CHECK(folder.read("out.csv") == whole);
@@ -251,7 +237,7 @@ TEST_CASE("kill -9 at random moments then one more run gives the uninterrupted o
     }
   const std::string whole = run_whole(folder, setup);
   const auto started = std::chrono::steady_clock::now();
-  REQUIRE(run_with(folder, "", "filter -m model.json whole.csv -o timing.csv " + setup.flags).status == 0);
+  REQUIRE(run_statewise_with(folder, "", "filter -m model.json whole.csv -o timing.csv " + setup.flags).status == 0);
   const auto full_run = std::chrono::steady_clock::now() - started;
   std::mt19937 random(20261202);
   std::uniform_int_distribution<long long> delay(0, std::chrono::duration_cast<std::chrono::microseconds>(full_run).count());
@@ -276,7 +262,7 @@ TEST_CASE("kill -9 at random moments then one more run gives the uninterrupted o
   }
   MESSAGE(killed << " of 25 runs were killed before they finished");
   const CommandResult last =
-      run_with(folder, "", "filter -m model.json --state state.json --append -o out.csv whole.csv " + setup.flags);
+      run_statewise_with(folder, "", "filter -m model.json --state state.json --append -o out.csv whole.csv " + setup.flags);
   REQUIRE_MESSAGE(last.status == 0, last.err);
   CHECK(folder.read("out.csv") == whole);
 }
@@ -304,7 +290,7 @@ TEST_CASE("two runs on one state file: the second waits or exits with status 5 u
   }
   REQUIRE(locked);
   const CommandResult busy =
-      run_with(folder, "", "filter -m model.json --state state.json --append -o out.csv second.csv --no-wait");
+      run_statewise_with(folder, "", "filter -m model.json --state state.json --append -o out.csv second.csv --no-wait");
   CHECK(busy.status == 5);
   CHECK(busy.err ==
         "statewise: error: state.json: another statewise run is using this state file (it holds state.json.lock); "
@@ -336,14 +322,14 @@ TEST_CASE("a damaged state file is an error and is left as it was") {
   const Setup setup = setups()[0];
   folder.write("model.json", setup.model);
   folder.write("part.csv", rows_text(setup.lines, 0, 100));
-  REQUIRE(run_with(folder, "", "filter -m model.json --state state.json --append -o out.csv part.csv").status == 0);
+  REQUIRE(run_statewise_with(folder, "", "filter -m model.json --state state.json --append -o out.csv part.csv").status == 0);
   const std::string state = folder.read("state.json");
   const std::string output = folder.read("out.csv");
   folder.write("part.csv", rows_text(setup.lines, 100, 200));
   const std::string command = "filter -m model.json --state state.json --append -o out.csv part.csv";
 
   folder.write("state.json", state.substr(0, state.size() / 2));  // truncated
-  CommandResult run = run_with(folder, "", command);
+  CommandResult run = run_statewise_with(folder, "", command);
   CHECK(run.status == 2);
   CHECK(run.err.rfind("statewise: error: state.json:", 0) == 0);
   CHECK(run.err.find(": invalid JSON: syntax error while parsing ") != std::string::npos);
@@ -351,14 +337,14 @@ TEST_CASE("a damaged state file is an error and is left as it was") {
   CHECK(folder.read("out.csv") == output);
 
   folder.write("state.json", replace(state, "\"rows\": 100", "\"rows\": -1"));
-  run = run_with(folder, "", command);
+  run = run_statewise_with(folder, "", command);
   CHECK(run.status == 2);
   CHECK(run.err ==
         "statewise: error: state.json: groups[\"\"].rows: expected a whole number (0 or more), got the number -1\n");
   CHECK(folder.read("out.csv") == output);
 
   folder.write("state.json", "");
-  run = run_with(folder, "", command);
+  run = run_statewise_with(folder, "", command);
   CHECK(run.status == 2);
   CHECK(run.err == "statewise: error: state.json: the file is empty; expected a JSON object\n");
   CHECK(folder.read("state.json").empty());
@@ -366,7 +352,7 @@ TEST_CASE("a damaged state file is an error and is left as it was") {
   // An output shorter than the state accounts for was changed by someone else.
   folder.write("state.json", state);
   folder.write("out.csv", output.substr(0, 100));
-  run = run_with(folder, "", command);
+  run = run_statewise_with(folder, "", command);
   CHECK(run.status == 2);
   CHECK(run.err == "statewise: error: state.json: output_length: the state accounts for " +
                        std::to_string(output.size()) +
@@ -381,14 +367,14 @@ TEST_CASE("a state file saved for another model is refused and --reset starts ag
   const Setup setup = setups()[0];
   folder.write("model.json", setup.model);
   folder.write("part.csv", rows_text(setup.lines, 0, 100));
-  REQUIRE(run_with(folder, "", "filter -m model.json --state state.json -o out.csv part.csv").status == 0);
+  REQUIRE(run_statewise_with(folder, "", "filter -m model.json --state state.json -o out.csv part.csv").status == 0);
   const std::string state = folder.read("state.json");
   // Layout and whitespace do not change the model; a number does.
   folder.write("spaced.json", replace(setup.model, "\"A\": [[1, 1], [0, 0.98]]", "\"A\" :\n [ [1, 1],\n [0, 0.980] ]"));
-  CHECK(run_with(folder, "", "filter -m spaced.json --state state.json -o out.csv part.csv").status == 0);
+  CHECK(run_statewise_with(folder, "", "filter -m spaced.json --state state.json -o out.csv part.csv").status == 0);
   folder.write("other.json", replace(setup.model, "\"Q\": [0.0004, 0.00002]", "\"Q\": [0.0004, 0.00003]"));
   const std::string saved = folder.read("state.json");
-  CommandResult run = run_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv");
+  CommandResult run = run_statewise_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv");
   CHECK(run.status == 2);
   const std::string fingerprint = saved.substr(saved.find("fnv1a64:"), 24);
   CHECK(run.err.rfind("statewise: error: state.json: model_fingerprint: the state was saved for another model (" +
@@ -396,13 +382,13 @@ TEST_CASE("a state file saved for another model is refused and --reset starts ag
                       0) == 0);
   CHECK(run.err.find("; --reset starts again from the model's prior\n") != std::string::npos);
   CHECK(folder.read("state.json") == saved);
-  run = run_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv --reset");
+  run = run_statewise_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv --reset");
   CHECK(run.status == 0);
   CHECK(run.err ==
         "statewise: warning: state.json: --reset: the saved state is ignored; the filter starts from the model's prior\n");
   CHECK(lines_of(folder.read("out.csv")).size() == 101);
   // Other settings change the estimates too.
-  run = run_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv --reject 0.99");
+  run = run_statewise_with(folder, "", "filter -m other.json --state state.json -o out.csv part.csv --reject 0.99");
   CHECK(run.status == 2);
   CHECK(run.err ==
         "statewise: error: state.json: settings: the state was saved with \"numerics=plain reject= regular=0 "
@@ -415,15 +401,15 @@ TEST_CASE("--state refuses --sort and --reset needs --state") {
   ScratchFolder folder;
   folder.write("model.json", cold_room_model());
   folder.write("part.csv", rows_text(cold_room_lines(10), 0, 10));
-  CommandResult run = run_with(folder, "", "filter -m model.json --state state.json --sort part.csv");
+  CommandResult run = run_statewise_with(folder, "", "filter -m model.json --state state.json --sort part.csv");
   CHECK(run.status == 2);
   CHECK(run.err ==
         "statewise: error: --sort: cannot be used with --state: a resumed run skips rows at or before the saved "
         "time, so the log must come in time order\n");
-  run = run_with(folder, "", "filter -m model.json --reset part.csv");
+  run = run_statewise_with(folder, "", "filter -m model.json --reset part.csv");
   CHECK(run.status == 2);
   CHECK(run.err == "statewise: error: --reset: needs --state FILE\n");
-  run = run_with(folder, "", "filter -m model.json --append part.csv");
+  run = run_statewise_with(folder, "", "filter -m model.json --append part.csv");
   CHECK(run.status == 2);
   CHECK(run.err ==
         "statewise: error: --append: needs -o FILE (a regular file); standard output cannot be appended to\n");

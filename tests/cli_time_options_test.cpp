@@ -6,23 +6,17 @@
 #include <cmath>
 #include <string>
 
+#include "cli_models.h"
 #include "cli_run.h"
 
 using statewise::testing::CommandResult;
+using statewise::testing::kFallingBodyModel;
 using statewise::testing::parse_table;
 using statewise::testing::run_statewise;
 using statewise::testing::ScratchFolder;
 using statewise::testing::Table;
 
 namespace {
-
-// Falling body: continuous white-noise acceleration with gravity as a known input (invented numbers).
-const char* kFallingBody = R"({
-  "states": ["position", "velocity"], "observations": ["height"], "inputs": ["g"],
-  "time": {"column": "time"}, "domain": "continuous",
-  "A": [[0, 1], [0, 0]], "B": [[0], [-1]], "C": [[1, 0]], "Q": [[0, 0], [0, 0.3]], "R": 0.25,
-  "initial": {"mean": [100, 0], "covariance": [4, 1]}
-})";
 
 const char* kFallingLog =
     "time,height,g\n"
@@ -58,7 +52,7 @@ TEST_CASE("rows inserted by --regular leave the smoothed estimates at the log's 
   // two is the composition of the two (the flow of the linear SDE), so the joint distribution of the
   // states at the log's rows, and hence their smoothed moments, are the same with or without it.
   ScratchFolder folder;
-  folder.write("model.json", kFallingBody);
+  folder.write("model.json", kFallingBodyModel);
   folder.write("log.csv", kFallingLog);
   const CommandResult plain = run_statewise(folder, "smooth -m model.json log.csv");
   const CommandResult regular =
