@@ -11,20 +11,18 @@
 
 #include "statewise/error.h"
 #include "statewise/model.h"
+#include "input_error.h"
 
 using namespace statewise;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
 StateSpaceModel parse(const std::string& text) { return parse_model(text, "model.json"); }
 
 std::string error_of(const std::string& text) {
-  try {
-    (void)parse_model(text, "model.json");
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "no error";
+  return input_error_of([&] { (void)parse_model(text, "model.json"); });
 }
 
 }  // namespace

@@ -11,25 +11,18 @@
 #include <string>
 #include <thread>
 
+#include "input_error.h"
+
 using statewise::CsvOptions;
 using statewise::CsvReader;
 using statewise::InputError;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
 CsvReader from_text(std::string text, const CsvOptions& options = {}) {
   return CsvReader::from_string(std::move(text), "log.csv", options);
-}
-
-// The complete message of the InputError that `action` raises, or "" when it raises none.
-template <typename Action>
-std::string error_of(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "";
 }
 
 // Reads every record of `text` (for errors that show up while reading).
@@ -224,7 +217,7 @@ TEST_CASE("csv: unparsable cells name the place and the column") {
   auto reader = from_text("time;temp\n1;20\n2;  12,5\n", options);
   REQUIRE(reader.next());
   REQUIRE(reader.next());
-  CHECK(error_of([&] { (void)reader.number(1); }) ==
+  CHECK(input_error_of([&] { (void)reader.number(1); }) ==
         "log.csv:3:3: cannot read \"12,5\" in column \"temp\" as a number");
 
   auto cells = from_text("a,b,c,d,e,f,g\n12abc,abc,++1,+-1,+,1.2.3,-\n");
@@ -232,25 +225,25 @@ TEST_CASE("csv: unparsable cells name the place and the column") {
   for (std::size_t i = 0; i < cells.field_count(); ++i) {
     CHECK_THROWS_AS((void)cells.number(i), InputError);
   }
-  CHECK(error_of([&] { (void)cells.number(1); }) ==
+  CHECK(input_error_of([&] { (void)cells.number(1); }) ==
         "log.csv:2:7: cannot read \"abc\" in column \"b\" as a number");
 }
 
 TEST_CASE("csv: infinite and out-of-range numbers are rejected") {
   auto reader = from_text("v\ninf\n-Infinity\n1e999\n-1e400\nNAN\n1e-400\n");
   REQUIRE(reader.next());
-  CHECK(error_of([&] { (void)reader.number(0); }) ==
+  CHECK(input_error_of([&] { (void)reader.number(0); }) ==
         "log.csv:2:1: cannot read \"inf\" in column \"v\" as a number; expected a finite number");
   REQUIRE(reader.next());
   CHECK_THROWS_AS((void)reader.number(0), InputError);
   REQUIRE(reader.next());
-  CHECK(error_of([&] { (void)reader.number(0); }) ==
+  CHECK(input_error_of([&] { (void)reader.number(0); }) ==
         "log.csv:4:1: cannot read \"1e999\" in column \"v\" as a number; it is out of range (magnitude above "
         "1.8e308)");
   REQUIRE(reader.next());
   CHECK_THROWS_AS((void)reader.number(0), InputError);
   REQUIRE(reader.next());
-  CHECK(error_of([&] { (void)reader.number(0); }) ==
+  CHECK(input_error_of([&] { (void)reader.number(0); }) ==
         "log.csv:6:1: cannot read \"NAN\" in column \"v\" as a number; write a missing value as an empty "
         "cell, NA, "
         "NaN, nan or null");
@@ -279,9 +272,9 @@ TEST_CASE("csv: header names are trimmed and looked up") {
 
 TEST_CASE("csv: an unknown column gets a did-you-mean hint") {
   auto reader = from_text("time,temperature,pressure\n1,2,3\n");
-  CHECK(error_of([&] { (void)reader.column_index("temprature"); }) ==
+  CHECK(input_error_of([&] { (void)reader.column_index("temprature"); }) ==
         "log.csv:1: no column \"temprature\" in the header; did you mean \"temperature\"?");
-  CHECK(error_of([&] { (void)reader.column_index("x"); }) ==
+  CHECK(input_error_of([&] { (void)reader.column_index("x"); }) ==
         "log.csv:1: no column \"x\" in the header; the columns are \"time\", \"temperature\", \"pressure\"");
 }
 
@@ -295,17 +288,17 @@ TEST_CASE("csv: header-only file has no records") {
 }
 
 TEST_CASE("csv: an empty file is an error") {
-  CHECK(error_of([] { from_text(""); }) == "log.csv: empty file; expected a header row");
-  CHECK(error_of([] { from_text("\n\r\n\n"); }) == "log.csv: empty file; expected a header row");
-  CHECK(error_of([] { from_text("\xEF\xBB\xBF"); }) == "log.csv: empty file; expected a header row");
+  CHECK(input_error_of([] { from_text(""); }) == "log.csv: empty file; expected a header row");
+  CHECK(input_error_of([] { from_text("\n\r\n\n"); }) == "log.csv: empty file; expected a header row");
+  CHECK(input_error_of([] { from_text("\xEF\xBB\xBF"); }) == "log.csv: empty file; expected a header row");
 }
 
 TEST_CASE("csv: bad header names") {
-  CHECK(error_of([] { from_text("time,temp,temp\n"); }) ==
+  CHECK(input_error_of([] { from_text("time,temp,temp\n"); }) ==
         "log.csv:1:11: column 3 of the header repeats \"temp\" (column 2); expected unique names");
-  CHECK(error_of([] { from_text("time,,temp\n"); }) ==
+  CHECK(input_error_of([] { from_text("time,,temp\n"); }) ==
         "log.csv:1:6: column 2 of the header is empty; expected a column name");
-  CHECK(error_of([] { from_text("a,b, ,\n"); }) ==
+  CHECK(input_error_of([] { from_text("a,b, ,\n"); }) ==
         "log.csv:1:5: column 3 of the header is empty; expected a column name");
   CHECK_THROWS_AS(from_text(",\n"), InputError);
 }
@@ -320,51 +313,51 @@ TEST_CASE("csv: a UTF-8 byte-order mark is skipped") {
 
 TEST_CASE("csv: UTF-16 is detected") {
   const std::string little_endian("\xFF\xFEt\0i\0m\0e\0\n\0", 12);
-  CHECK(error_of([&] { from_text(little_endian); }) ==
+  CHECK(input_error_of([&] { from_text(little_endian); }) ==
         "log.csv:1:1: looks like UTF-16 (byte-order mark FF FE); save it as UTF-8");
   const std::string big_endian("\xFE\xFF\0t\0i\0m\0e\0\n", 12);
-  CHECK(error_of([&] { from_text(big_endian); }) ==
+  CHECK(input_error_of([&] { from_text(big_endian); }) ==
         "log.csv:1:1: looks like UTF-16 (byte-order mark FE FF); save it as UTF-8");
   const std::string without_mark("t\0i\0m\0e\0\n\0", 10);
-  CHECK(error_of([&] { from_text(without_mark); }) ==
+  CHECK(input_error_of([&] { from_text(without_mark); }) ==
         "log.csv:1:2: looks like UTF-16 (NUL in every other byte); save it as UTF-8");
 }
 
 TEST_CASE("csv: a NUL byte is binary data") {
-  CHECK(error_of([] { read_all(std::string("a,b\n1,2\n3,x\0y\n", 14)); }) ==
+  CHECK(input_error_of([] { read_all(std::string("a,b\n1,2\n3,x\0y\n", 14)); }) ==
         "log.csv:3:4: binary data (NUL byte); expected UTF-8 text");
-  CHECK(error_of([] { read_all(std::string("a,b\n1,\"x\0\"\n", 11)); }) ==
+  CHECK(input_error_of([] { read_all(std::string("a,b\n1,\"x\0\"\n", 11)); }) ==
         "log.csv:2:5: binary data (NUL byte); expected UTF-8 text");
-  CHECK(error_of([] { read_all(std::string("a,b\n1,\"x\"\0\n", 11)); }) ==
+  CHECK(input_error_of([] { read_all(std::string("a,b\n1,\"x\"\0\n", 11)); }) ==
         "log.csv:2:6: binary data (NUL byte); expected UTF-8 text");
 }
 
 TEST_CASE("csv: wrong field counts") {
-  CHECK(error_of([] { read_all("a,b,c,d\n1,2,3,4\n1,2,3\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b,c,d\n1,2,3,4\n1,2,3\n"); }) ==
         "log.csv:3: expected 4 fields as in the header, got 3");
-  CHECK(error_of([] { read_all("a,b,c,d\n1,2,3,4,5,6\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b,c,d\n1,2,3,4,5,6\n"); }) ==
         "log.csv:2:9: expected 4 fields as in the header, got 6");
-  CHECK(error_of([] { read_all("a,b\n1,2,3\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b\n1,2,3\n"); }) ==
         "log.csv:2:5: expected 2 fields as in the header, got 3");
-  CHECK(error_of([] { read_all("a\n1,\n1,,\n"); }) ==
+  CHECK(input_error_of([] { read_all("a\n1,\n1,,\n"); }) ==
         "log.csv:3:3: expected 1 field as in the header, got 3");
 }
 
 TEST_CASE("csv: an unterminated quote names where it opened") {
-  CHECK(error_of([] { read_all("a,b\n1,2\n3,\"open\n4,5\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b\n1,2\n3,\"open\n4,5\n"); }) ==
         "log.csv:3:3: quoted field never closed; expected a closing '\"' before the end of the input");
 }
 
 TEST_CASE("csv: text after a closing quote") {
-  CHECK(error_of([] { read_all("a,b\n1,\"2\"x\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b\n1,\"2\"x\n"); }) ==
         "log.csv:2:6: unexpected 'x' after a closing quote; expected ',' or the end of the line");
-  CHECK(error_of([] { read_all("a,b\n1,\"2\" \n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b\n1,\"2\" \n"); }) ==
         "log.csv:2:6: unexpected space after a closing quote; expected ',' or the end of the line");
-  CHECK(error_of([] { read_all("a,b\n1,\"2\"\rx\n"); }) ==
+  CHECK(input_error_of([] { read_all("a,b\n1,\"2\"\rx\n"); }) ==
         "log.csv:2:6: unexpected carriage return after a closing quote; expected ',' or the end of the line");
   CsvOptions tabs;
   tabs.delimiter = '\t';
-  CHECK(error_of([&] { read_all("a\tb\n\"1\";2\n", tabs); }) ==
+  CHECK(input_error_of([&] { read_all("a\tb\n\"1\";2\n", tabs); }) ==
         "log.csv:2:4: unexpected ';' after a closing quote; expected a tab or the end of the line");
 }
 
@@ -384,7 +377,7 @@ TEST_CASE("csv: too many fields in one record") {
   std::string text = "a\n";
   text.append(1'000'001, ',');
   text += "\n";
-  CHECK(error_of([&] { read_all(text); }) ==
+  CHECK(input_error_of([&] { read_all(text); }) ==
         "log.csv:2: record has more than 1000000 fields; expected at most 1000000");
 }
 
@@ -429,14 +422,14 @@ TEST_CASE("csv: a record longer than 64 MiB is refused") {
     TempFile file(text);
     auto reader = CsvReader::open(file.path(), {});
     REQUIRE(reader.next());
-    std::string message = error_of([&] { (void)reader.next(); });
+    std::string message = input_error_of([&] { (void)reader.next(); });
     CHECK(message == file.path() + expected.substr(7));
   }
-  CHECK(error_of([&] { read_all(std::move(text)); }) == expected);
+  CHECK(input_error_of([&] { read_all(std::move(text)); }) == expected);
 }
 
 TEST_CASE("csv: a file that cannot be opened") {
-  CHECK(error_of([] { CsvReader::open("/nonexistent/statewise.csv", {}); }) ==
+  CHECK(input_error_of([] { CsvReader::open("/nonexistent/statewise.csv", {}); }) ==
         "/nonexistent/statewise.csv: cannot open (No such file or directory)");
 }
 

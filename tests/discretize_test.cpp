@@ -11,8 +11,11 @@
 
 #include "statewise/error.h"
 #include "test_models.h"
+#include "input_error.h"
 
 using namespace statewise;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
@@ -28,16 +31,6 @@ double relative_error(const Eigen::MatrixXd& actual, const Eigen::MatrixXd& expe
 }
 
 using testing::kinematic_model;
-
-template <typename Action>
-std::string error_of(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "";
-}
 
 }  // namespace
 
@@ -167,13 +160,13 @@ TEST_CASE("discretize_model makes a discrete model with the step, or refuses wit
   const StateSpaceModel coarser = discretize_model(discrete, 6.0);
   CHECK(coarser.A(0, 1) == doctest::Approx(6.0));
   CHECK(coarser.Q(0, 0) == doctest::Approx(0.7 * 216.0 / 3.0));
-  CHECK(error_of([&] { discretize_model(discrete, 3.0); }) ==
+  CHECK(input_error_of([&] { discretize_model(discrete, 3.0); }) ==
         "--dt: expected a whole multiple of the model's step of 2 s, got 3 (1.5 steps)");
-  CHECK(error_of([&] { discretize_model(continuous, 0.0); }) ==
+  CHECK(input_error_of([&] { discretize_model(continuous, 0.0); }) ==
         "--dt: expected a positive number of seconds, got 0");
   StateSpaceModel stepless = discrete;
   stepless.step = 0.0;
-  CHECK(error_of([&] { discretize_model(stepless, 1.0); }) ==
+  CHECK(input_error_of([&] { discretize_model(stepless, 1.0); }) ==
         "--dt: the model is already discrete and has no \"step\" to count 1 s in; expected a continuous "
         "model or a "
         "discrete one with a step");

@@ -13,9 +13,12 @@
 
 #include "statewise/filter_state.h"
 #include "test_models.h"
+#include "input_error.h"
 
 using namespace statewise;
 using testing::two_channel_model;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
@@ -26,15 +29,6 @@ std::vector<double> values_of(int t) {
   return {t % 4 == 1 ? kMissing : std::sin(0.3 * t), t % 5 == 2 ? kMissing : 0.5 * std::cos(0.2 * t)};
 }
 std::vector<double> inputs_of(int t) { return {0.1 * (t % 7)}; }
-
-std::string error_of(const std::function<void()>& action) {
-  try {
-    action();
-  } catch (const InputError& e) {
-    return e.what();
-  }
-  return "(no error)";
-}
 
 }  // namespace
 
@@ -128,7 +122,7 @@ TEST_CASE("filter state: bad state text is reported with the file, the key and w
       R"({"statewise_filter_state": 1, "states": ["a", "b"], "rows_processed": 3, "mean": [1, 2],
           "covariance": [[1, 0], [0, 1]], "inputs": ["u"], "last_inputs": [0.5]})";
   CHECK_NOTHROW(parse_filter_state(good, model, "s.json"));
-  auto error = [&](const std::string& text) { return error_of([&] { parse_filter_state(text, model, "s.json"); }); };
+  auto error = [&](const std::string& text) { return input_error_of([&] { parse_filter_state(text, model, "s.json"); }); };
   auto replaced = [&](const std::string& from, const std::string& to) {
     std::string text = good;
     text.replace(text.find(from), from.size(), to);
@@ -161,14 +155,14 @@ TEST_CASE("filter state: restore() checks a state built in code") {
   KalmanFilter filter(model);
   FilterState state = filter.state();
   state.mean = Eigen::Vector3d(1, 2, 3);
-  CHECK(error_of([&] { filter.restore(state); }) ==
+  CHECK(input_error_of([&] { filter.restore(state); }) ==
         "filter state: mean: expected 2 values (one per state: a, b), got 3");
   state = filter.state();
   state.covariance(0, 0) = std::numeric_limits<double>::infinity();
-  CHECK(error_of([&] { filter.restore(state); }) == "filter state: covariance[0][0]: expected a finite number, got inf");
+  CHECK(input_error_of([&] { filter.restore(state); }) == "filter state: covariance[0][0]: expected a finite number, got inf");
   state = filter.state();
   state.last_inputs.resize(0);
-  CHECK(error_of([&] { filter.restore(state); }) ==
+  CHECK(input_error_of([&] { filter.restore(state); }) ==
         "filter state: last_inputs: expected 1 values (one per input: u), got 0");
 }
 
@@ -178,13 +172,13 @@ TEST_CASE("filter state: step() refuses bad rows with the row and the value, cha
   InnovationRecord record;
   REQUIRE(filter.step(values_of(0), inputs_of(0), record) == StepStatus::ok);
   const FilterState before = filter.state();
-  CHECK(error_of([&] { filter.step(std::vector<double>{1, 2, 3}, inputs_of(1), record); }) ==
+  CHECK(input_error_of([&] { filter.step(std::vector<double>{1, 2, 3}, inputs_of(1), record); }) ==
         "row 2: values: expected 2 channel values (y1, y2), got 3");
-  CHECK(error_of([&] { filter.step(values_of(1), std::vector<double>{}, record); }) ==
+  CHECK(input_error_of([&] { filter.step(values_of(1), std::vector<double>{}, record); }) ==
         "row 2: inputs: expected 1 inputs (u), got 0");
-  CHECK(error_of([&] { filter.step(std::vector<double>{1, -INFINITY}, inputs_of(1), record); }) ==
+  CHECK(input_error_of([&] { filter.step(std::vector<double>{1, -INFINITY}, inputs_of(1), record); }) ==
         "row 2: values[1]: channel \"y2\": expected a finite number or NaN for a missing value, got -inf");
-  CHECK(error_of([&] { filter.step(values_of(1), std::vector<double>{kMissing}, record); }) ==
+  CHECK(input_error_of([&] { filter.step(values_of(1), std::vector<double>{kMissing}, record); }) ==
         "row 2: inputs[0]: the input \"u\" is missing; inputs are known quantities and must be given on every row");
   CHECK(filter.mean() == before.mean);
   CHECK(filter.covariance() == before.covariance);

@@ -9,8 +9,11 @@
 #include <string>
 
 #include "statewise/error.h"
+#include "input_error.h"
 
 using namespace statewise;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
@@ -31,16 +34,6 @@ StateSpaceModel ar1_model(double a, double q, double r) {
   model.step = 60.0;
   validate_model(model, "test");
   return model;
-}
-
-template <typename Action>
-std::string error_of(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "";
 }
 
 }  // namespace
@@ -102,33 +95,33 @@ TEST_CASE("future rows are laid out by the model's time axis") {
   CHECK(row_steps.gaps[1].steps == 1);
   CHECK(row_steps.seconds_after_last.empty());
 
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           plan_forecast(stepped, ForecastRequest{1, false, 0.0, 90.0}, 0.0);
         }) == "--step: expected a whole multiple of the model's step of 60 s, got 90");
   CHECK(
-      error_of([&] {
+      input_error_of([&] {
         plan_forecast(rows, ForecastRequest{1, false, 0.0, 60.0}, 0.0);
       }) ==
       "--step: the model has no \"step\", so its future rows are one model step each; remove --step, or give "
       "the model a \"step\"");
   CHECK(
-      error_of([&] {
+      input_error_of([&] {
         plan_forecast(rows, ForecastRequest{0, true, 600.0, 0.0}, 0.0);
       }) ==
       "--until: needs a model with a time axis (a continuous model, or a discrete one with a \"step\"); use "
       "--horizon");
   CHECK(
-      error_of([&] {
+      input_error_of([&] {
         plan_forecast(continuous, ForecastRequest{3, false, 0.0, 0.0}, 0.0);
       }) ==
       "--step: needed: the log has no two rows at different times, so there is no typical gap to use as the "
       "forecast step; give --step SECONDS");
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           plan_forecast(stepped, ForecastRequest{0, true, 30.0, 0.0}, 0.0);
         }) ==
         "--until: is 30 s after the log's last row, less than one forecast step of 60 s; expected a later "
         "time");
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           plan_forecast(stepped, ForecastRequest{0, false, 0.0, 0.0}, 0.0);
         }) == "--horizon: expected a number of rows from 1 to 10000000, got 0");
 }

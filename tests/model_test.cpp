@@ -13,6 +13,9 @@
 #include <string_view>
 
 #include "statewise/error.h"
+#include "input_error.h"
+
+using statewise::testing::input_error_of;
 
 namespace {
 
@@ -22,12 +25,7 @@ using statewise::StateSpaceModel;
 
 // The complete message of the InputError that parsing `text` as "model.json" raises.
 std::string error_of(std::string_view text) {
-  try {
-    parse_model(text, "model.json");
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "(no error)";
+  return input_error_of([&] { (void)parse_model(text, "model.json"); });
 }
 
 // Nests `levels` - 1 lists inside the "description" value of an otherwise valid model, so the whole

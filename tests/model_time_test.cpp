@@ -7,8 +7,11 @@
 
 #include "statewise/error.h"
 #include "statewise/model.h"
+#include "input_error.h"
 
 using namespace statewise;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
@@ -18,12 +21,7 @@ std::string model_text(const std::string& extra) {
 }
 
 std::string error_of(const std::string& text) {
-  try {
-    parse_model(text, "m.json");
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "";
+  return input_error_of([&] { (void)parse_model(text, "m.json"); });
 }
 
 }  // namespace

@@ -8,24 +8,18 @@
 #include <string>
 #include <vector>
 
+#include "input_error.h"
+
 using namespace statewise;
+
+using statewise::testing::input_error_of;
 
 namespace {
 
 TimePoint time_of(const std::string& text) { return parse_time(text, {"log.csv", 2, 1, ""}, "time").time; }
 
-template <typename Action>
-std::string error_of(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  return "";
-}
-
 std::string parse_error(const std::string& text) {
-  return error_of([&] { parse_time(text, {"log.csv", 7, 1, ""}, "time"); });
+  return input_error_of([&] { parse_time(text, {"log.csv", 7, 1, ""}, "time"); });
 }
 
 // A one-state, one-channel, one-input model with a time column.
@@ -213,7 +207,7 @@ TEST_CASE("times are written back in the log's own style") {
 TEST_CASE("a row that goes back in time is an error naming its line") {
   // Specification: docs/cli.md, section "Time axis options".
   const StateSpaceModel model = model_with_time();
-  const std::string message = error_of([&] {
+  const std::string message = input_error_of([&] {
     run_timeline(model, {}, {{"10", 1, 0}, {"20", 1, 0}, {"15", 1, 0}});
   });
   CHECK(
@@ -228,7 +222,7 @@ TEST_CASE("a repeated time is an error unless a duplicates policy merges the row
   const StateSpaceModel model = model_with_time();
   const std::vector<LogRow> rows = {
       {"0", 1.0, 10.0}, {"5", 2.0, 20.0}, {"5", kMissing, 30.0}, {"5", 6.0, 40.0}, {"9", 7.0, 50.0}};
-  CHECK(error_of([&] { run_timeline(model, {}, rows); }) ==
+  CHECK(input_error_of([&] { run_timeline(model, {}, rows); }) ==
         "log.csv:4:1: the time \"5\" repeats the time of line 3; expected increasing times (--duplicates "
         "first|last|mean merges rows with the same time)");
   const auto first = run_timeline(model, {DuplicatePolicy::first, 0.0}, rows);
@@ -263,7 +257,7 @@ TEST_CASE("gaps are whole model steps for a discrete model with a step") {
   CHECK(rows[2].gap.steps == 3);
   CHECK(rows[3].gap.steps == 1);  // 1e-5 s off is within 1e-6 of a 60 s step
   CHECK(rows[2].time == 240.0);
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           run_timeline(model, {}, {{"0", 1, 0}, {"60", 1, 0}, {"150", 1, 0}});
         }) ==
         "log.csv:4:1: the gap of 90 s since line 3 is not a whole number of model steps of 60 s (1.5 steps); "
@@ -277,7 +271,7 @@ TEST_CASE("gaps are whole model steps for a discrete model with a step") {
 
 TEST_CASE("a column must keep one form of time") {
   // Specification: docs/model-format.md, section "Time".
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           run_timeline(model_with_time(), {}, {{"2026-11-02T00:00:00Z", 1, 0}, {"1793580000", 1, 0}});
         }) ==
         "log.csv:3:1: the time \"1793580000\" is a number of seconds but line 2's time is an ISO 8601 "
@@ -327,23 +321,23 @@ TEST_CASE("--regular for a discrete model becomes its step or must be a multiple
                                    {DuplicatePolicy::error, 60.0}, {{"0", 1, 0}, {"180", 1, 0}});
   REQUIRE(coarse.size() == 4);
   CHECK(coarse[1].gap.steps == 2);
-  CHECK(error_of([] {
+  CHECK(input_error_of([] {
           Timeline(model_with_time(TimeDomain::discrete, 30.0), {DuplicatePolicy::error, 45.0}, "log.csv");
         }) == "--regular: expected a whole multiple of the model's step of 30 s, got 45");
   StateSpaceModel no_time = model_with_time();
   no_time.time_column.clear();
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           Timeline(no_time, {DuplicatePolicy::error, 60.0}, "log.csv");
         }) ==
         "--regular: needs a time column; the model declares none (add \"time\": {\"column\": ...} to the "
         "model file)");
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           Timeline(no_time, {DuplicatePolicy::mean, 0.0}, "log.csv");
         }) ==
         "--duplicates: needs a time column; the model declares none (add \"time\": {\"column\": ...} to the "
         "model "
         "file)");
-  CHECK(error_of([&] {
+  CHECK(input_error_of([&] {
           run_timeline(model_with_time(TimeDomain::continuous), {DuplicatePolicy::error, 0.001},
                        {{"0", 1, 0}, {"86400", 1, 0}});
         }) ==
